@@ -1,0 +1,79 @@
+"""The `tubulo` command line: a parser builder plus `main(argv=None)`; heavy imports stay inside commands."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from typing import Sequence
+
+from . import __version__
+from .errors import CaseError, KnowledgeError, TubuloError
+
+__all__ = ["build_parser", "main"]
+
+EXIT_OK, EXIT_PROBLEMS, EXIT_INVALID = 0, 1, 2
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    from .case import load_case
+    from .output.check import check_json, check_text
+    from .workup import assess
+
+    case = load_case(args.case)
+    workup = assess(case)
+    out = check_json(workup) if args.json else check_text(workup, show_all=args.all)
+    sys.stdout.write(out)
+    return EXIT_OK
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="tubulo",
+        description="Offline clinical reasoning about the renal tubule (decision support, not a diagnosis).",
+    )
+    parser.add_argument("--version", action="version", version=f"tubulo {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    p = sub.add_parser("check", help="validate a case; show measurements with reference flags and derived indices")
+    p.add_argument("case", help="case file (.yaml or .json)")
+    p.add_argument("--json", action="store_true", help="print JSON (keys: case, measurements, derived)")
+    p.add_argument("--all", action="store_true", help="also list the indices that cannot be computed, with why")
+    p.set_defaults(handler=_cmd_check)
+    for module in ("tubulo.kb.cli", "tubulo.engine_cli"):
+        try:
+            mod = __import__(module, fromlist=["add_subparser"])
+        except ImportError:
+            continue
+        mod.add_subparser(sub)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    handler = getattr(args, "handler", None)
+    if handler is None:
+        parser.print_help()
+        return EXIT_INVALID
+    try:
+        return int(handler(args) or 0)
+    except CaseError as exc:
+        where = f"{exc.source}: " if exc.source else ""
+        print(f"tubulo: {where}the case is not valid ({len(exc.problems)} problem"
+              f"{'s' if len(exc.problems) != 1 else ''}):", file=sys.stderr)
+        for p in exc.problems:
+            print(f"  - {p}", file=sys.stderr)
+        return EXIT_INVALID
+    except KnowledgeError as exc:
+        print(f"tubulo: knowledge error: {exc}", file=sys.stderr)
+        return EXIT_INVALID
+    except TubuloError as exc:
+        print(f"tubulo: {exc}", file=sys.stderr)
+        return EXIT_INVALID
+    except BrokenPipeError:
+        return EXIT_OK
+    except KeyboardInterrupt:
+        return 130
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

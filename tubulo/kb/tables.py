@@ -1,0 +1,82 @@
+"""The compiled knowledge tables, loaded from the on-disk cache (fast path of every case run).
+
+`load_tables()` imports neither networkx, pydantic nor numpy when the cache is warm: it hashes the
+knowledge files, unpickles plain data, and only on a miss calls `compile.build_tables`.
+Treat the returned dict as read-only (it is shared within the process).
+
+Layout (`tables_version` 1):
+  meta            {knowledge_version, release_date, hpo_release, description, caution, checks,
+                   knowledge_hash, files}
+  scoring         {leak, llr_cap, prior_exponent, min_prior, source, notes}
+  variables       {variable: {label, states, direction, hpo, gate, background, cost}}
+  hpo_labels      {HP:id: label}   (from hpo_subset.json when present, else empty)
+  candidates      {id: {id, name, kind (inherited|acquired|drug), synonyms, xrefs (OMIM:/ORPHA:, or
+                   ATC:code of each drug member), genes, segments, inheritance, onset, prevalence,
+                   prevalence_source, exposures, acts_on [{target, effect, sign, source, note}],
+                   members [{inn, atc, synonyms}], atc_prefix [..], manifests {variable|HP:id:
+                   {state: p}} (HPO features as {present, absent}), manifest_sources {key: source},
+                   notes, source, origin "file:line"}}    in file order
+  exposures       {id: {id, name, synonyms, acts_on, source}}
+  drug_index      {inn or synonym, lower-case: [{class, inn}]}
+  atc_index       {ATC code: [{class, inn}]}
+  exposure_index  {id, name or synonym, lower-case: exposure id}
+  paths           {candidate: {variable: {predicted (+1|-1|None when ambiguous), ambiguous, distance,
+                   curated (sign of the curated most likely state, or None), steps, alternative}}}
+                   for each variable the candidate manifests and reaches; a step is
+                   {node, label, kind, edge, sign, direction, source, note}: `edge` is the kind of
+                   the edge that led to `node`, `sign` that edge's sign, `direction` the cumulative
+                   sign at `node`.  The first step is the candidate's target (edge acts_on).
+  nodes           {node id: {kind, label, ...attributes}}
+  adjacency       {node id: {out: [edge], in: [edge]}}; an edge is {kind, node (the other end),
+                   source, and sign / effect / side / note / origin where they apply}
+  lookup          {lower-case id, label, synonym, xref, INN, ATC, gene symbol: [node ids]}
+  consistency     {compared, agreed, rate, lean_agreements, min_agreement, disagreements [...]}
+"""
+
+from __future__ import annotations
+
+import hashlib
+from pathlib import Path
+from typing import Any
+
+__all__ = ["load_tables", "folder_hash", "find_nodes", "TABLES_VERSION"]
+
+TABLES_VERSION = 1  # raise when the layout below changes, so that old caches are not read
+
+
+def folder_hash(folder: Path) -> str:
+    """The cache key of a knowledge folder other than the installed one (same rule as `knowledge_hash`)."""
+    from .. import __version__
+
+    h = hashlib.sha256(__version__.encode())
+    for pattern in ("*.yaml", "*.txt", "*.json"):
+        for path in sorted(Path(folder).glob(pattern)):
+            h.update(path.name.encode())
+            h.update(path.read_bytes())
+    return h.hexdigest()[:20]
+
+
+def load_tables(folder: Path | str | None = None) -> dict[str, Any]:
+    """The compiled tables of the installed knowledge (or of `folder`), from cache when warm."""
+    from ..cache import cached, knowledge_hash
+
+    key = (knowledge_hash() if folder is None else "f" + folder_hash(Path(folder))) + f"-t{TABLES_VERSION}"
+
+    def build() -> dict[str, Any]:
+        from .compile import build_tables
+
+        return build_tables(folder, key=key)
+
+    return cached("tables", build, key=key)
+
+
+def find_nodes(tables: dict[str, Any], query: str) -> list[str]:
+    """Node ids matching `query`: an exact id first, else a case-insensitive name, synonym or xref."""
+    if query in tables["nodes"]:
+        return [query]
+    for prefix in ("gene:", "drug:"):
+        if prefix + query in tables["nodes"]:
+            return [prefix + query]
+    if "gene:" + query.upper() in tables["nodes"]:
+        return ["gene:" + query.upper()]
+    return list(tables["lookup"].get(query.lower(), []))

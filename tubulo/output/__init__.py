@@ -1,0 +1,1 @@
+"""Renderers: the last layer, turning results into text and JSON."""

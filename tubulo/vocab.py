@@ -1,0 +1,185 @@
+"""Vocabularies a case is checked against: HPO terms (bundled subset), drug names, exposures.
+
+Matching is case-insensitive and folds British/American spellings (hypokalaemia = hypokalemia,
+oedema = edema) so a clinician can type what they are used to.
+"""
+
+from __future__ import annotations
+
+import difflib
+import json
+import re
+from dataclasses import dataclass
+from functools import cache
+
+from .paths import knowledge_dir, read_knowledge_yaml
+
+__all__ = [
+    "DrugMatch",
+    "HpoTerm",
+    "fold",
+    "hpo_release",
+    "hpo_terms",
+    "lookup_drug",
+    "lookup_exposure",
+    "lookup_hpo_id",
+    "lookup_phrase",
+    "suggest_drugs",
+    "suggest_exposures",
+    "suggest_phrases",
+]
+
+_HPO_ID = re.compile(r"^(HP:\d{7})\b\s*(.*)$")
+
+
+@dataclass(frozen=True)
+class HpoTerm:
+    id: str
+    label: str
+    synonyms: tuple[str, ...]
+    parents: tuple[str, ...]
+    obsolete: bool = False
+
+
+@dataclass(frozen=True)
+class DrugMatch:
+    """A medication name resolved to its INN and the drug class (ranking candidate) it belongs to."""
+
+    inn: str
+    class_id: str
+    atc: str | None
+
+
+def fold(text: str) -> str:
+    """Lower-case, British-to-American spelling folds, punctuation to single spaces."""
+    t = text.lower().strip()
+    for a, b in (("ae", "e"), ("oe", "e"), ("-", " ")):
+        t = t.replace(a, b)
+    t = re.sub(r"[^a-z0-9+ ]+", " ", t)
+    return " ".join(t.split())
+
+
+@cache
+def _subset() -> dict:
+    from .cache import cached
+
+    return cached("hpo", _read_subset)
+
+
+def _read_subset() -> dict:
+    with open(knowledge_dir() / "hpo_subset.json", encoding="utf-8") as fh:
+        return json.load(fh)
+
+
+def hpo_release() -> str:
+    """The HPO release the bundled subset was built from."""
+    return str(_subset().get("hpo_release", "unknown"))
+
+
+@cache
+def hpo_terms() -> dict[str, HpoTerm]:
+    return {
+        hid: HpoTerm(hid, t["label"], tuple(t.get("synonyms", ())), tuple(t.get("parents", ())), bool(t.get("obsolete")))
+        for hid, t in _subset()["terms"].items()
+    }
+
+
+@cache
+def _phrase_index() -> dict[str, str]:
+    from .cache import cached
+
+    return cached("phrases", _build_phrase_index)
+
+
+def _build_phrase_index() -> dict[str, str]:
+    index: dict[str, str] = {}
+    for term in hpo_terms().values():
+        if term.obsolete:
+            continue
+        for name in (term.label, *term.synonyms):
+            index.setdefault(fold(name), term.id)
+    # our own extra phrases (knowledge/phrases.yaml), e.g. clinic words for HPO terms
+    try:
+        extra = read_knowledge_yaml("phrases.yaml") or {}
+    except FileNotFoundError:
+        extra = {}
+    for phrase, hid in (extra.get("phrases") or {}).items():
+        index[fold(phrase)] = hid
+    return index
+
+
+def lookup_hpo_id(text: str) -> tuple[HpoTerm | None, str, str]:
+    """("HP:0001561 Polyhydramnios") -> (term or None, id, label text written after it)."""
+    m = _HPO_ID.match(text.strip())
+    if not m:
+        return None, "", ""
+    hid, label = m.groups()
+    return hpo_terms().get(hid), hid, label.strip()
+
+
+def lookup_phrase(text: str) -> HpoTerm | None:
+    """A plain phrase ("nephrocalcinosis", "hypokalaemia") -> its HPO term, or None."""
+    hid = _phrase_index().get(fold(text))
+    return hpo_terms().get(hid) if hid else None
+
+
+def suggest_phrases(text: str, n: int = 3) -> list[str]:
+    """Closest known phrases, each as 'HP:id label'."""
+    index = _phrase_index()
+    close = difflib.get_close_matches(fold(text), list(index), n=n, cutoff=0.6)
+    out = []
+    for c in close:
+        term = hpo_terms()[index[c]]
+        item = f"{term.id} {term.label}"
+        if item not in out:
+            out.append(item)
+    return out
+
+
+@cache
+def _drug_index() -> dict[str, DrugMatch]:
+    try:
+        raw = read_knowledge_yaml("drugs.yaml") or {}
+    except FileNotFoundError:
+        return {}
+    index: dict[str, DrugMatch] = {}
+    for cls in raw.get("drug_classes") or []:
+        for member in cls.get("members") or []:
+            match = DrugMatch(member["inn"], cls["id"], member.get("atc"))
+            for name in (member["inn"], *(member.get("synonyms") or ())):
+                index.setdefault(fold(name), match)
+    return index
+
+
+def lookup_drug(name: str) -> DrugMatch | None:
+    """An INN or synonym (any case) -> its DrugMatch, or None when the knowledge does not cover it."""
+    return _drug_index().get(fold(name))
+
+
+def suggest_drugs(name: str, n: int = 3) -> list[str]:
+    index = _drug_index()
+    return sorted({index[c].inn for c in difflib.get_close_matches(fold(name), list(index), n=n, cutoff=0.75)})
+
+
+@cache
+def _exposure_index() -> dict[str, str]:
+    try:
+        raw = read_knowledge_yaml("exposures.yaml") or {}
+    except FileNotFoundError:
+        return {}
+    index: dict[str, str] = {}
+    for entry in raw.get("exposures") or []:
+        for name in (entry["id"], entry.get("name", ""), *(entry.get("synonyms") or ())):
+            if name:
+                index.setdefault(fold(name), entry["id"])
+    return index
+
+
+def lookup_exposure(name: str) -> str | None:
+    """An exposure name or synonym -> its id, or None."""
+    return _exposure_index().get(fold(name))
+
+
+def suggest_exposures(name: str, n: int = 3) -> list[str]:
+    index = _exposure_index()
+    return sorted({index[c] for c in difflib.get_close_matches(fold(name), list(index), n=n, cutoff=0.6)})
