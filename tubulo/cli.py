@@ -50,7 +50,7 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
-    handler = getattr(args, "handler", None)
+    handler = getattr(args, "handler", None) or getattr(args, "func", None)
     if handler is None:
         parser.print_help()
         return EXIT_INVALID

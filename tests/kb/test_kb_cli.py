@@ -77,7 +77,7 @@ def test_show_json_and_unknown(capsys):
     rc, text = run(["knowledge", "show", "ncc", "--json", "--dir", str(GOOD)])
     data = json.loads(text)
     assert rc == 0 and data["node"]["kind"] == "transporter"
-    assert {e["node"] for e in data["adjacency"]["in"] if e["kind"] == "acts_on"} == {"gitelman",
+    assert {e["from"] for e in data["adjacency"]["in"] if e["kind"] == "acts_on"} == {"gitelman",
                                                                                      "thiazide_diuretic"}
     rc, _ = run(["knowledge", "show", "no_such_thing", "--dir", str(GOOD)])
     assert rc == 2

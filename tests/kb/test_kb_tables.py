@@ -10,7 +10,7 @@ import sys
 import pytest
 
 from tubulo.kb.compile import build_tables
-from tubulo.kb.tables import find_nodes, load_tables
+from tubulo.kb.tables import GRAPH_VIEW_KEYS, find_nodes, load_graph_view, load_tables
 
 from .conftest import GOOD
 
@@ -70,13 +70,21 @@ def test_paths(tables):
 
 
 def test_adjacency_and_meta(tables):
-    out = {(e["kind"], e["node"]) for e in tables["adjacency"]["ncc"]["out"]}
+    out = {(e["kind"], e["to"]) for e in tables["adjacency"]["ncc"]["out"]}
     assert ("expressed_in", "dct1") in out and ("encoded_by", "gene:SLC12A3") in out
-    inn = {(e["kind"], e["node"]) for e in tables["adjacency"]["ncc"]["in"]}
+    inn = {(e["kind"], e["from"]) for e in tables["adjacency"]["ncc"]["in"]}
     assert ("acts_on", "gitelman") in inn and ("acts_on", "thiazide_diuretic") in inn
     assert tables["meta"]["knowledge_version"] and tables["meta"]["caution"]
     assert tables["variables"]["renal_k_handling"]["gate"]["variable"] == "serum_potassium"
     assert tables["consistency"]["rate"] == 1.0
+
+
+def test_graph_view_is_kept_apart(good_copy):
+    core = load_tables(good_copy)
+    view = load_graph_view(good_copy)
+    assert not set(GRAPH_VIEW_KEYS) & set(core) and set(view) == set(GRAPH_VIEW_KEYS)
+    assert find_nodes(core, "frusemide", view["lookup"]) == ["drug:furosemide"]
+    assert "gitelman" in {e["from"] for e in view["adjacency"]["gene:SLC12A3"]["in"]}
 
 
 def test_load_tables_caches_by_folder_content(good_copy):

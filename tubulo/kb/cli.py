@@ -145,11 +145,12 @@ def cmd_list(args: argparse.Namespace, out: TextIO | None = None) -> int:
 
 def cmd_show(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """One node, its neighbours grouped by edge kind with sources, and a candidate's causal paths."""
-    from .tables import find_nodes, load_tables
+    from .tables import find_nodes, load_graph_view, load_tables
 
     out = out or sys.stdout
     t = load_tables(args.dir)
-    hits = find_nodes(t, args.id)
+    view = load_graph_view(args.dir)
+    hits = find_nodes(t, args.id, view["lookup"])
     if not hits:
         print(f"knowledge show: no node matches {args.id!r} (expected a node id, name, synonym, gene, INN, "
               "OMIM/ORPHA id or ATC code; see `tubulo knowledge list`)", file=sys.stderr)
@@ -159,7 +160,7 @@ def cmd_show(args: argparse.Namespace, out: TextIO | None = None) -> int:
         return 2
     nid = hits[0]
     node = t["nodes"][nid]
-    adj = t["adjacency"].get(nid, {"out": [], "in": []})
+    adj = view["adjacency"].get(nid, {"out": [], "in": []})
     cand = t["candidates"].get(nid)
     paths = t["paths"].get(nid, {})
     if args.json:
@@ -186,6 +187,7 @@ def cmd_show(args: argparse.Namespace, out: TextIO | None = None) -> int:
                 continue  # listed with their distributions below
             print(f"  {title} {kind}:", file=out)
             for e in es:
+                e = {**e, "node": e["to"] if direction == "out" else e["from"]}
                 other = t["nodes"].get(e["node"], {})
                 tags = [f"sign {e['sign']:+d}" if "sign" in e and kind not in ("manifests",) else "",
                         e.get("effect", "") if kind == "acts_on" else "", e.get("side", "")]

@@ -7,7 +7,9 @@ The layout of the tables is documented in `tubulo/kb/tables.py`.
 from __future__ import annotations
 
 import json
+import sys
 from pathlib import Path
+from typing import Any
 
 from .consistency import consistency_report, curated_sign
 from .graph import Prediction, build_graph, drug_node, propagate
@@ -47,7 +49,9 @@ def build_tables(folder: Path | str | None = None, key: str = "") -> dict:
 
 def compile_knowledge(kn: Knowledge, key: str = "") -> dict:
     """Tables from validated knowledge (pure: the same knowledge gives the same tables)."""
-    hpo_labels = read_hpo_labels(kn.folder)
+    used = {t for v in kn.variables.values() for t in v.hpo.values()}
+    used |= {k for ms in kn.manifests.values() for k in ms if k.startswith("HP:")}
+    hpo_labels = {t: name for t, name in read_hpo_labels(kn.folder).items() if t in used}
     g = build_graph(kn, hpo_labels)
     reaches = {cid: propagate(g, cid) for cid in kn.candidates()}
     report = consistency_report(kn, g, reaches)
@@ -76,9 +80,9 @@ def compile_knowledge(kn: Knowledge, key: str = "") -> dict:
     for u, v, data in g.edges(data=True):
         if data["kind"] in _ADJ_SKIP:
             continue
-        info = {k: val for k, val in data.items() if val is not None and k != "states"}
-        adjacency[u]["out"].append({**info, "node": v})
-        adjacency[v]["in"].append({**info, "node": u})
+        edge = {"from": u, "to": v, **{k: val for k, val in data.items() if val is not None and k != "states"}}
+        adjacency[u]["out"].append(edge)  # one dict shared by both ends
+        adjacency[v]["in"].append(edge)
 
     lookup: dict[str, list[str]] = {}
 
@@ -107,7 +111,7 @@ def compile_knowledge(kn: Knowledge, key: str = "") -> dict:
             add(attrs["label"], nid)
 
     meta = kn.meta.model_dump() if kn.meta else {}
-    return {
+    return _share({
         "tables_version": TABLES_VERSION,
         "meta": {**meta, "knowledge_hash": key, "files": list(kn.files)},
         "scoring": kn.scoring.model_dump(exclude_none=True) if kn.scoring else {},
@@ -131,7 +135,25 @@ def compile_knowledge(kn: Knowledge, key: str = "") -> dict:
                                "curated": c.curated, "most_likely": c.most_likely, "reason": c.reason,
                                "note": c.note} for c in report.disagreements],
         },
-    }
+    }, {})
+
+
+def _share(obj: Any, memo: dict) -> Any:
+    """Intern strings and let equal flat dicts be one object, so the pickle stores each once
+    (a warm load then unpickles far fewer objects).  The tables are read-only, so sharing is safe."""
+    if isinstance(obj, str):
+        return sys.intern(obj)
+    if isinstance(obj, list):
+        return [_share(v, memo) for v in obj]
+    if isinstance(obj, dict):
+        if id(obj) in memo:
+            return memo[id(obj)]
+        new = {_share(k, memo): _share(v, memo) for k, v in obj.items()}
+        if all(not isinstance(v, (dict, list)) for v in new.values()):
+            new = memo.setdefault(tuple((k, type(v), v) for k, v in new.items()), new)
+        memo[id(obj)] = new
+        return new
+    return obj
 
 
 def _variable(v) -> dict:

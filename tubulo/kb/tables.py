@@ -2,14 +2,15 @@
 
 `load_tables()` imports neither networkx, pydantic nor numpy when the cache is warm: it hashes the
 knowledge files, unpickles plain data, and only on a miss calls `compile.build_tables`.
-Treat the returned dict as read-only (it is shared within the process).
+Treat the returned dict as read-only: it is shared within the process, and equal small dicts
+and strings inside it are one object (see `compile._share`).
 
 Layout (`tables_version` 1):
   meta            {knowledge_version, release_date, hpo_release, description, caution, checks,
                    knowledge_hash, files}
   scoring         {leak, llr_cap, prior_exponent, min_prior, source, notes}
   variables       {variable: {label, states, direction, hpo, gate, background, cost}}
-  hpo_labels      {HP:id: label}   (from hpo_subset.json when present, else empty)
+  hpo_labels      {HP:id: label} for the HPO ids the knowledge uses (from hpo_subset.json when present)
   candidates      {id: {id, name, kind (inherited|acquired|drug), synonyms, xrefs (OMIM:/ORPHA:, or
                    ATC:code of each drug member), genes, segments, inheritance, onset, prevalence,
                    prevalence_source, exposures, acts_on [{target, effect, sign, source, note}],
@@ -27,25 +28,28 @@ Layout (`tables_version` 1):
                    the edge that led to `node`, `sign` that edge's sign, `direction` the cumulative
                    sign at `node`.  The first step is the candidate's target (edge acts_on).
   nodes           {node id: {kind, label, ...attributes}}
-  adjacency       {node id: {out: [edge], in: [edge]}}; an edge is {kind, node (the other end),
-                   source, and sign / effect / side / note / origin where they apply}
+  -- graph view (`load_graph_view()`, a second cache entry) --
+  adjacency       {node id: {out: [edge], in: [edge]}}; an edge is {from, to, kind, source, and
+                   sign / effect / side / note / origin where they apply}, the same dict at both ends
   lookup          {lower-case id, label, synonym, xref, INN, ATC, gene symbol: [node ids]}
   consistency     {compared, agreed, rate, lean_agreements, min_agreement, disagreements [...]}
 """
 
 from __future__ import annotations
 
-import hashlib
 from pathlib import Path
 from typing import Any
 
-__all__ = ["load_tables", "folder_hash", "find_nodes", "TABLES_VERSION"]
+__all__ = ["load_tables", "load_graph_view", "folder_hash", "find_nodes", "TABLES_VERSION", "GRAPH_VIEW_KEYS"]
 
 TABLES_VERSION = 1  # raise when the layout below changes, so that old caches are not read
+GRAPH_VIEW_KEYS = ("adjacency", "lookup")
 
 
 def folder_hash(folder: Path) -> str:
     """The cache key of a knowledge folder other than the installed one (same rule as `knowledge_hash`)."""
+    import hashlib
+
     from .. import __version__
 
     h = hashlib.sha256(__version__.encode())
@@ -56,22 +60,45 @@ def folder_hash(folder: Path) -> str:
     return h.hexdigest()[:20]
 
 
+def _key(folder: Path | str | None) -> str:
+    from ..cache import knowledge_hash
+
+    return (knowledge_hash() if folder is None else "f" + folder_hash(Path(folder))) + f"-t{TABLES_VERSION}"
+
+
+def _build_both(folder: Path | str | None, key: str) -> tuple[dict[str, Any], dict[str, Any]]:
+    """Compile once; store the graph view in its own cache entry and return (core, graph view)."""
+    from ..cache import cached
+    from .compile import build_tables
+
+    full = build_tables(folder, key=key)
+    view = {k: full.pop(k) for k in GRAPH_VIEW_KEYS}
+    cached("tables_graph", lambda: view, key=key)
+    return full, view
+
+
 def load_tables(folder: Path | str | None = None) -> dict[str, Any]:
-    """The compiled tables of the installed knowledge (or of `folder`), from cache when warm."""
-    from ..cache import cached, knowledge_hash
+    """The compiled tables of the installed knowledge (or of `folder`), from cache when warm.
 
-    key = (knowledge_hash() if folder is None else "f" + folder_hash(Path(folder))) + f"-t{TABLES_VERSION}"
+    `adjacency` and `lookup` (used by `tubulo knowledge show`) are kept in a second cache entry so a
+    case run does not unpickle them; `load_graph_view()` returns them."""
+    from ..cache import cached
 
-    def build() -> dict[str, Any]:
-        from .compile import build_tables
-
-        return build_tables(folder, key=key)
-
-    return cached("tables", build, key=key)
+    key = _key(folder)
+    return cached("tables", lambda: _build_both(folder, key)[0], key=key)
 
 
-def find_nodes(tables: dict[str, Any], query: str) -> list[str]:
-    """Node ids matching `query`: an exact id first, else a case-insensitive name, synonym or xref."""
+def load_graph_view(folder: Path | str | None = None) -> dict[str, Any]:
+    """{adjacency, lookup} of the compiled tables (see the layout above), from cache when warm."""
+    from ..cache import cached
+
+    key = _key(folder)
+    return cached("tables_graph", lambda: _build_both(folder, key)[1], key=key)
+
+
+def find_nodes(tables: dict[str, Any], query: str, lookup: dict[str, list[str]] | None = None) -> list[str]:
+    """Node ids matching `query`: an exact id first, else a case-insensitive name, synonym or xref
+    (from `lookup` of the graph view; `tables["lookup"]` when the tables were compiled whole)."""
     if query in tables["nodes"]:
         return [query]
     for prefix in ("gene:", "drug:"):
@@ -79,4 +106,5 @@ def find_nodes(tables: dict[str, Any], query: str) -> list[str]:
             return [prefix + query]
     if "gene:" + query.upper() in tables["nodes"]:
         return ["gene:" + query.upper()]
-    return list(tables["lookup"].get(query.lower(), []))
+    lookup = lookup if lookup is not None else tables["lookup"]
+    return list(lookup.get(query.lower(), []))

@@ -1,0 +1,94 @@
+"""Next tests: unobserved variables ranked by the expected reduction of posterior entropy (bits)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Mapping, Sequence
+
+from .findings import Findings, _gate_holds, feature_terms
+from .scoring import RESIDUAL_ID, Scored, _priors_conf, state_probability
+
+__all__ = ["NextTest", "next_tests"]
+
+COST_ORDER = {"bedside": 0, "routine": 1, "special": 2, "genetic": 3}
+
+
+@dataclass(frozen=True)
+class NextTest:
+    variable: str
+    label: str
+    test: str
+    cost: str
+    expected_bits: float
+    separates: tuple[str, ...]
+
+
+def _entropy(ps: Sequence[float]) -> float:
+    return -sum(p * math.log2(p) for p in ps if p > 0)
+
+
+def _dist(tables, cid: str, var: str) -> list[float]:
+    """P(state | candidate) over the variable's states (background when the candidate is silent)."""
+    leak = float(tables["scoring"]["leak"])
+    spec = tables["variables"].get(var)
+    if spec is not None:
+        states = list(spec["states"])
+        m = None if cid == RESIDUAL_ID else (tables["candidates"][cid].get("manifests") or {}).get(var)
+        return [state_probability(m or spec.get("background"), states, s, leak) for s in states]
+    fb = float(_priors_conf()["feature_background"])
+    m = None if cid == RESIDUAL_ID else (tables["candidates"][cid].get("manifests") or {}).get(var)
+    p = (1 - leak) * float(m.get("present", fb)) + leak / 2 if m else fb
+    return [p, 1 - p]
+
+
+def next_tests(scored: Sequence[Scored], findings: Findings, tables: Mapping[str, Any], top: int = 8,
+               pool: int = 25) -> list[NextTest]:
+    """The unobserved variables (gate open) and HPO features of the leaders, by expected information gain."""
+    lead = [s for s in scored[:pool] if s.probability > 1e-6]
+    z = sum(s.probability for s in lead)
+    pi = [s.probability / z for s in lead]
+    h0 = _entropy(pi)
+    variables = tables["variables"]
+    candidates = []
+    for var, spec in variables.items():
+        if var in findings.variables:
+            continue
+        if _gate_holds(spec.get("gate"), findings.variables) is not True:
+            continue
+        candidates.append((var, spec.get("label", var), spec.get("test") or spec.get("label", var), spec.get("cost", "routine")))
+    seen_features = set(findings.features_present) | set(findings.features_absent)
+    costs = _priors_conf().get("hpo_test_cost") or {}
+    hpo_labels = tables.get("hpo_labels") or {}
+    feature_keys = set()
+    for s in lead[:10]:
+        if s.id == RESIDUAL_ID:
+            continue
+        for key in tables["candidates"][s.id].get("manifests") or {}:
+            if key.startswith("HP:") and key not in seen_features and key not in feature_terms():
+                feature_keys.add(key)
+    for key in sorted(feature_keys):
+        label = hpo_labels.get(key, key)
+        candidates.append((key, label, f"look for: {label}", costs.get(key, "bedside")))
+    out = []
+    for var, label, test, cost in candidates:
+        dists = [_dist(tables, s.id, var) for s in lead]
+        n = len(dists[0])
+        expected = 0.0
+        for k in range(n):
+            ps = sum(pi[i] * dists[i][k] for i in range(len(lead)))
+            if ps <= 0:
+                continue
+            post = [pi[i] * dists[i][k] / ps for i in range(len(lead))]
+            expected += ps * _entropy(post)
+        gain = h0 - expected
+        if gain < 0.01:
+            continue
+        # the leaders whose most likely state differs from the top candidate's
+        best = [max(range(n), key=lambda k: d[k]) for d in dists]
+        sep = [lead[i].id for i in range(min(6, len(lead))) if best[i] != best[0]]
+        if sep:
+            sep = [lead[0].id] + sep
+        out.append(NextTest(var, label, test, cost, round(gain, 4), tuple(sep[:5])))
+    out.sort(key=lambda t: (-t.expected_bits, COST_ORDER.get(t.cost, 9), t.variable))
+    return out[:top]

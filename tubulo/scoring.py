@@ -1,0 +1,229 @@
+"""Scoring: Bayesian evidence accumulation over every candidate plus an open-world residual.
+
+posterior(c) is proportional to prior(c) x product over observed variables v of P(state_v | c) / P(state_v | background).
+A candidate silent on a variable scores it with the background distribution (ratio 1, no effect);
+a listed state gets its curated probability, states left out share the leak; each variable's log
+ratio is capped.  Gates (findings layer) keep correlated physiology from being counted twice.
+Pure functions over the compiled tables; deterministic (sorted iteration, no randomness).
+
+>>> round(_llr(0.8, 0.2, cap=3.0), 4)
+1.3863
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import cache
+from typing import Any, Mapping
+
+from .case import Case
+from .findings import Findings, feature_terms
+from .paths import read_knowledge_yaml
+
+__all__ = ["Evidence", "Scored", "RESIDUAL_ID", "score", "state_probability", "priors", "likelihood_table",
+           "observations"]
+
+RESIDUAL_ID = "residual"
+
+
+@dataclass(frozen=True)
+class Evidence:
+    variable: str  # a variable id or an HPO id
+    state: str
+    log_lr: float
+    p_candidate: float
+    p_background: float
+
+
+@dataclass(frozen=True)
+class Scored:
+    id: str
+    probability: float
+    log_prior: float
+    log_score: float
+    evidence: tuple[Evidence, ...]
+    prior_notes: tuple[str, ...]
+
+
+@cache
+def _priors_conf() -> dict:
+    return read_knowledge_yaml("priors.yaml")
+
+
+def _llr(p: float, q: float, cap: float) -> float:
+    return max(-cap, min(cap, math.log(p) - math.log(q)))
+
+
+def state_probability(manifest: Mapping[str, float] | None, states: list[str], state: str, leak: float) -> float:
+    """P(state | candidate) from a sparse curated distribution, with the leak spread over all states."""
+    n = len(states)
+    if not manifest:
+        return 1.0 / n
+    listed = {s: max(0.0, float(p)) for s, p in manifest.items() if s in states}
+    total = sum(listed.values())
+    rest = [s for s in states if s not in listed]
+    if total < 1.0 and rest:
+        share = (1.0 - total) / len(rest)
+        q = {s: listed.get(s, share) for s in states}
+    else:
+        q = {s: listed.get(s, 0.0) for s in states}
+    z = sum(q.values()) or 1.0
+    return (1.0 - leak) * q[state] / z + leak / n
+
+
+def _background(var_spec: Mapping[str, Any], state: str, leak: float) -> float:
+    states = list(var_spec["states"])
+    return state_probability(var_spec.get("background"), states, state, leak)
+
+
+def observations(findings: Findings, tables: Mapping[str, Any]) -> dict[str, str]:
+    """{variable or HPO id: observed state} — HPO features that name a variable state are left to the variable."""
+    obs = {v: f.state for v, f in findings.variables.items()}
+    terms = feature_terms()
+    for hid in findings.features_present:
+        if hid not in terms:
+            obs[hid] = "present"
+    for hid in findings.features_absent:
+        if hid not in terms:
+            obs[hid] = "absent"
+    return obs
+
+
+def _hpo_ancestors(hid: str, terms: Mapping[str, Any]) -> set[str]:
+    out: set[str] = set()
+    stack = [hid]
+    while stack:
+        t = terms.get(stack.pop())
+        if not t:
+            continue
+        for p in t.parents:
+            if p not in out:
+                out.add(p)
+                stack.append(p)
+    return out
+
+
+def _feature_state(key: str, obs: Mapping[str, str], expand: Mapping[str, set[str]]) -> str | None:
+    """Observed state of a candidate's HPO key: a present descendant counts as present (true-path rule),
+    an absent ancestor as absent."""
+    if key in obs:
+        return obs[key]
+    for hid, ancestors in expand.items():
+        if obs.get(hid) == "present" and key in ancestors:
+            return "present"
+    for hid, state in obs.items():
+        if state == "absent" and hid.startswith("HP:") and hid in expand.get(key, set()):
+            return "absent"
+    return None
+
+
+def likelihood_table(cand: Mapping[str, Any], obs: Mapping[str, str], tables: Mapping[str, Any]) -> list[Evidence]:
+    """Per observed variable: P(state | candidate), P(state | background) and the capped log ratio."""
+    scoring = tables["scoring"]
+    leak, cap = float(scoring["leak"]), float(scoring["llr_cap"])
+    variables = tables["variables"]
+    manifests = cand.get("manifests") or {}
+    fb = float(_priors_conf()["feature_background"])
+    from .vocab import hpo_terms
+
+    terms = hpo_terms()
+    feature_keys = [k for k in manifests if k.startswith("HP:") and k not in feature_terms()]
+    expand = {h: _hpo_ancestors(h, terms) for h in list(obs) + feature_keys if h.startswith("HP:")}
+    out: list[Evidence] = []
+    for var, state in sorted(obs.items()):
+        if var.startswith("HP:"):
+            continue
+        spec = variables.get(var)
+        if spec is None or state not in spec["states"]:
+            continue
+        m = manifests.get(var)
+        if not m:
+            continue  # silent: background on both sides, ratio 1
+        p = state_probability(m, list(spec["states"]), state, leak)
+        q = _background(spec, state, leak)
+        out.append(Evidence(var, state, _llr(p, q, cap), p, q))
+    for key in sorted(feature_keys):
+        state = _feature_state(key, obs, expand)
+        if state is None:
+            continue
+        present = float((manifests[key] or {}).get("present", 0.0))
+        p_present = (1.0 - leak) * present + leak / 2
+        p = p_present if state == "present" else 1.0 - p_present
+        q = fb if state == "present" else 1.0 - fb
+        out.append(Evidence(key, state, _llr(p, q, cap), p, q))
+    return out
+
+
+def priors(case: Case, tables: Mapping[str, Any]) -> dict[str, tuple[float, tuple[str, ...]]]:
+    """{candidate id: (prior weight, notes on how context changed it)}, residual included."""
+    conf = _priors_conf()
+    scoring = tables["scoring"]
+    alpha, floor = float(scoring["prior_exponent"]), float(scoring["min_prior"])
+    on_list = {m.class_id for m in case.medications if m.class_id}
+    unknown_meds = sum(1 for m in case.medications if not m.class_id)
+    out: dict[str, tuple[float, tuple[str, ...]]] = {}
+    for cid, cand in tables["candidates"].items():
+        notes: list[str] = []
+        kind = cand["kind"]
+        if kind == "drug":
+            if cid in on_list:
+                w = float(conf["drug_on_list_weight"])
+                names = sorted({m.inn for m in case.medications if m.class_id == cid and m.inn})
+                notes.append("on the medication list: " + ", ".join(names))
+            else:
+                w = float(conf["drug_not_listed_weight"])
+                notes.append("not on the medication list: only as unrecorded or surreptitious use")
+        else:
+            w = max(float(cand.get("prevalence") or 0.0), floor) ** alpha
+        if kind == "acquired" and cand.get("exposures"):
+            if set(cand["exposures"]) & set(case.exposures):
+                w *= float(conf["exposure_present_factor"])
+                notes.append("exposure reported")
+            else:
+                w *= float(conf["exposure_absent_factor"])
+        onsets = cand.get("onset") or []
+        if case.onset and onsets and case.onset not in onsets:
+            w *= float(conf["onset_mismatch_factor"])
+            notes.append(f"onset {case.onset} is atypical (typical: {', '.join(onsets)})")
+        inh = cand.get("inheritance")
+        if kind == "inherited" and inh:
+            if inh == "XLR" and case.patient.sex == "female":
+                w *= float(conf["xlr_female_factor"])
+                notes.append("X-linked recessive in a female: less likely")
+            fam = case.family
+            if fam.consanguinity and inh in conf["consanguinity_factor"]:
+                w *= float(conf["consanguinity_factor"][inh])
+                notes.append("consanguinity fits recessive inheritance")
+            if fam.pattern and fam.pattern != "unknown":
+                f = float(conf["family_pattern_factor"][fam.pattern].get(inh, 1.0))
+                if f != 1.0:
+                    w *= f
+                    notes.append(f"family pattern {fam.pattern} {'fits' if f > 1 else 'does not fit'} {inh}")
+            elif fam.affected_relatives:
+                w *= float(conf["affected_relatives_factor"].get(inh, 1.0))
+                notes.append("affected relatives")
+        elif kind in ("acquired", "drug") and case.family.affected_relatives and case.family.pattern not in (None, "unknown"):
+            w *= float(conf["affected_relatives_factor"]["sporadic"])
+            notes.append("a familial pattern argues against an acquired cause")
+        out[cid] = (w, tuple(notes))
+    out[RESIDUAL_ID] = (float(conf["residual_weight"]) * float(conf["unknown_medication_residual"]) ** unknown_meds,
+                        ("open world: a cause the knowledge does not list",))
+    return out
+
+
+def score(case: Case, findings: Findings, tables: Mapping[str, Any]) -> list[Scored]:
+    """Every candidate with its posterior probability, sorted (probability desc, id asc)."""
+    obs = observations(findings, tables)
+    pri = priors(case, tables)
+    rows = []
+    for cid in sorted(pri):
+        w, notes = pri[cid]
+        evidence = () if cid == RESIDUAL_ID else tuple(likelihood_table(tables["candidates"][cid], obs, tables))
+        lp = math.log(w)
+        rows.append((cid, lp, lp + sum(e.log_lr for e in evidence), evidence, notes))
+    top = max(r[2] for r in rows)
+    z = sum(math.exp(r[2] - top) for r in rows)
+    scored = [Scored(cid, math.exp(s - top) / z, lp, s, ev, notes) for cid, lp, s, ev, notes in rows]
+    scored.sort(key=lambda s: (-s.probability, s.id))
+    return scored
