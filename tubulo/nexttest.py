@@ -6,7 +6,7 @@ import math
 from dataclasses import dataclass
 from typing import Any, Mapping, Sequence
 
-from .findings import Findings, _gate_holds, feature_terms
+from .findings import Findings, _gate_holds, feature_terms, variables_spec
 from .scoring import RESIDUAL_ID, Scored, _priors_conf, state_probability
 
 __all__ = ["NextTest", "next_tests"]
@@ -56,7 +56,8 @@ def next_tests(scored: Sequence[Scored], findings: Findings, tables: Mapping[str
             continue
         if _gate_holds(spec.get("gate"), findings.variables) is not True:
             continue
-        candidates.append((var, spec.get("label", var), spec.get("test") or spec.get("label", var), spec.get("cost", "routine")))
+        test = (variables_spec().get(var) or {}).get("test") or spec.get("label", var)
+        candidates.append((var, spec.get("label", var), test, spec.get("cost", "routine")))
     seen_features = set(findings.features_present) | set(findings.features_absent)
     costs = _priors_conf().get("hpo_test_cost") or {}
     hpo_labels = tables.get("hpo_labels") or {}

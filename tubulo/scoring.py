@@ -216,12 +216,14 @@ def score(case: Case, findings: Findings, tables: Mapping[str, Any]) -> list[Sco
     """Every candidate with its posterior probability, sorted (probability desc, id asc)."""
     obs = observations(findings, tables)
     pri = priors(case, tables)
+    # evidence weight < 1 tempers naive-Bayes over-confidence from correlated findings (calibration)
+    weight = float(tables["scoring"].get("evidence_weight", _priors_conf().get("evidence_weight", 1.0)))
     rows = []
     for cid in sorted(pri):
         w, notes = pri[cid]
         evidence = () if cid == RESIDUAL_ID else tuple(likelihood_table(tables["candidates"][cid], obs, tables))
         lp = math.log(w)
-        rows.append((cid, lp, lp + sum(e.log_lr for e in evidence), evidence, notes))
+        rows.append((cid, lp, lp + weight * sum(e.log_lr for e in evidence), evidence, notes))
     top = max(r[2] for r in rows)
     z = sum(math.exp(r[2] - top) for r in rows)
     scored = [Scored(cid, math.exp(s - top) / z, lp, s, ev, notes) for cid, lp, s, ev, notes in rows]

@@ -87,3 +87,12 @@ def test_show_json_and_unknown(capsys):
 def test_subcommand_required():
     with pytest.raises(SystemExit):
         run(["knowledge"])
+
+
+def test_list_on_invalid_knowledge_is_a_short_error(good_copy, capsys):
+    (good_copy / "mechanisms_bad.yaml").write_text(
+        "edges:\n  - {from: ncc, to: nowhere, sign: 1, source: common practice}\n")
+    rc, text = run(["knowledge", "list", "--dir", str(good_copy)])
+    assert rc == 2 and text == ""
+    err = capsys.readouterr().err
+    assert "1 problem(s)" in err and "mechanisms_bad.yaml:2" in err and "tubulo knowledge check" in err

@@ -29,6 +29,7 @@ def test_fixture_agrees_fully():
     rep = consistency_report(kn, build_graph(kn))
     assert rep.compared == 20 and rep.agreed == 20 and rep.ok
     assert rep.lean_agreements == 1  # gitelman blood pressure: normal most likely, leaning low
+    assert rep.strict_rate == pytest.approx(19 / 20)
     assert ("bartter_type1", "polyuria") in rep.not_reached
 
 
@@ -82,7 +83,7 @@ def test_real_knowledge_consistency():
         pytest.skip("no candidates in knowledge/ yet")
     rep = consistency_report(kn, build_graph(kn))
     print(f"\nphysiology consistency: {rep.agreed}/{rep.compared} = {100 * rep.rate:.1f} % "
-          f"({rep.lean_agreements} by lean); disagreements {len(rep.disagreements)}, "
+          f"({rep.lean_agreements} by lean; strict {100 * rep.strict_rate:.1f} %); disagreements {len(rep.disagreements)}, "
           f"unexplained {len(rep.unexplained)}; not reached {len(rep.not_reached)}")
     for c in rep.unexplained:
         print(f"  UNEXPLAINED {c.candidate} / {c.variable}: predicted {c.predicted}, curated {c.curated} "
@@ -91,3 +92,22 @@ def test_real_knowledge_consistency():
     assert rep.rate >= rep.min_agreement
     assert not rep.unexplained
     assert not rep.stale_exceptions
+
+
+def test_bound_rule_for_a_variable_without_a_lower_state(good_copy):
+    """Polyuria has no state below normal: a predicted fall agrees with 'absent' at its bound."""
+    (good_copy / "mechanisms_more.yaml").write_text(
+        "edges:\n  - {from: tal_nacl_reabsorption, to: polyuria, sign: -1, source: common practice}\n")
+    p = good_copy / "disorders_fixture.yaml"
+    p.write_text(p.read_text().replace("acts_on: [{target: nkcc2, effect: loss", "acts_on: [{target: nkcc2, effect: gain"))
+    kn = load_knowledge(good_copy)
+    rep = consistency_report(kn, build_graph(kn))
+    pol = [c for c in rep.comparisons if (c.candidate, c.variable) == ("bartter_type1", "polyuria")]
+    # gain of NKCC2 predicts less urine; curated 'present' 0.9 is not the bound 'absent': disagreement
+    assert pol and pol[0].rule == "bound" and not pol[0].agrees
+    p.write_text(p.read_text().replace("polyuria: {states: {present: 0.9, absent: 0.1}",
+                                       "polyuria: {states: {present: 0.05, absent: 0.95}"))
+    kn = load_knowledge(good_copy)
+    rep = consistency_report(kn, build_graph(kn))
+    pol = [c for c in rep.comparisons if (c.candidate, c.variable) == ("bartter_type1", "polyuria")]
+    assert pol[0].agrees and rep.bound_agreements == 1

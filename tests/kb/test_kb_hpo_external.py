@@ -6,9 +6,10 @@ data folder; Köhler S et al. 2021 Nucleic Acids Res "The Human Phenotype Ontolo
 Gene-disease: every OMIM/ORPHA id of an inherited disorder is a disease of phenotype.hpoa, and every
 gene the disorder lists is linked to at least one of its ids in genes_to_phenotype.txt.
 
-Manifestations: for each inherited disorder, each HPO term the curation speaks to (the `hpo` of a
-manifested variable's states in variables.yaml, summed over states naming the same term, and HPO
-feature keys with their `present` probability) is compared with the disease's HPO annotations
+Manifestations: for each inherited disorder, each HPO term the curation speaks to (the `hpo` in
+variables.yaml of the states a manifest lists, its probability summed over the listed states whose
+term is that term or a descendant of it; and HPO feature keys with their `present` probability) is
+compared with the disease's HPO annotations
 (phenotype aspect, closed under is_a: an annotation to a term annotates its ancestors):
   * HPO annotates the term (frequency unknown or >= 10 %): curated p >= hpo_present_min agrees,
     p < hpo_absent_max disagrees;
@@ -44,18 +45,18 @@ def _kn(which):
     return kn
 
 
-def _curated_terms(kn, did) -> dict[str, float]:
+def _curated_terms(kn, did, hpo) -> dict[str, float]:
+    """HPO term -> curated probability, for the terms of the states a manifest lists (a state left
+    out says nothing here); a listed state whose term is T or a descendant of T counts for T."""
     terms: dict[str, float] = {}
     for key, m in kn.manifests.get(did, {}).items():
         if isinstance(m, FeatureManifest):
             terms[key] = max(terms.get(key, 0.0), m.present)
             continue
-        by_term: dict[str, float] = {}
-        for state, p in m.states.items():
-            term = kn.variables[key].hpo.get(state)
-            if term:
-                by_term[term] = by_term.get(term, 0.0) + p
-        for term, p in by_term.items():
+        hpo_of = kn.variables[key].hpo
+        for term in {hpo_of[s] for s in m.states if s in hpo_of}:  # terms of the states the curation lists
+            p = sum(prob for state, prob in m.states.items()
+                    if state in hpo_of and term in hpo.ancestors(hpo_of[state]))
             terms[term] = max(terms.get(term, 0.0), p)
     return terms
 
@@ -148,7 +149,7 @@ def manifest_pairs(kn, hpo):
     for did, d in kn.disorders.items():
         if d.kind != "inherited" or not d.xrefs:
             continue
-        for term, p in _curated_terms(kn, did).items():
+        for term, p in _curated_terms(kn, did, hpo).items():
             status = _status(hpo, d.xrefs, term)
             if status is None:
                 counts["not_annotated"] += 1

@@ -184,3 +184,11 @@ def test_state_manifest_sums(states):
     else:
         with pytest.raises(ValueError):
             S.StateManifest(states=states, source="from memory")
+
+
+def test_one_faulty_variable_does_not_hide_the_others(good_copy):
+    p = good_copy / "variables.yaml"
+    p.write_text(p.read_text().replace("    label: Serum potassium\n", "    label: Serum potassium\n    colour: blue\n"))
+    _, problems = check_knowledge(good_copy)
+    errors = [str(x) for x in problems if x.level == "error"]
+    assert len(errors) == 1 and "variable 'serum_potassium': field colour: unknown field" in errors[0]

@@ -53,6 +53,22 @@ def main(argv: list[str] | None = None) -> int:
     return args.func(args)
 
 
+def _tables(args: argparse.Namespace, graph_view: bool = False):
+    """The compiled tables (and graph view), or None after a short message when the knowledge is invalid."""
+    from ..errors import KnowledgeError
+    from .tables import load_graph_view, load_tables
+
+    try:
+        t = load_tables(args.dir)
+        return (t, load_graph_view(args.dir)) if graph_view else t
+    except KnowledgeError as exc:
+        n = len(getattr(exc, "problems", ())) or "some"
+        first = str(exc).splitlines()[1].strip() if len(str(exc).splitlines()) > 1 else str(exc)
+        print(f"knowledge: the knowledge files have {n} problem(s), first: {first}\n"
+              "run `tubulo knowledge check` for all of them", file=sys.stderr)
+        return None
+
+
 # ---------------------------------------------------------------- check
 
 
@@ -87,8 +103,10 @@ def cmd_check(args: argparse.Namespace, out: TextIO | None = None) -> int:
     if kn is not None:
         rep = consistency_report(kn, build_graph(kn))
         print(f"\nphysiology consistency: {rep.agreed}/{rep.compared} candidate-variable pairs agree "
-              f"({100 * rep.rate:.1f} %; {rep.lean_agreements} of them by the lean of a normal most-likely "
-              f"state); required {100 * rep.min_agreement:.0f} %", file=out)
+              f"({100 * rep.rate:.1f} %); required {100 * rep.min_agreement:.0f} %", file=out)
+        print(f"  of the agreements, {rep.lean_agreements} by the lean of a normal most-likely state and "
+              f"{rep.bound_agreements} at a variable's bound; by the most likely state's sign alone "
+              f"{100 * rep.strict_rate:.1f} %", file=out)
         dis = rep.disagreements
         print(f"  disagreements: {len(dis)} ({len(dis) - len(rep.unexplained)} explained in "
               f"consistency_exceptions.yaml, {len(rep.unexplained)} unexplained)", file=out)
@@ -118,10 +136,10 @@ def cmd_check(args: argparse.Namespace, out: TextIO | None = None) -> int:
 
 def cmd_list(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """Every candidate (optionally of one kind), as text or JSON."""
-    from .tables import load_tables
-
     out = out or sys.stdout
-    t = load_tables(args.dir)
+    t = _tables(args)
+    if t is None:
+        return 2
     rows = [{"id": c["id"], "name": c["name"], "kind": c["kind"], "xrefs": list(c["xrefs"]),
              "genes": list(c["genes"]), "segments": list(c["segments"])}
             for c in t["candidates"].values() if args.kind is None or c["kind"] == args.kind]
@@ -145,11 +163,13 @@ def cmd_list(args: argparse.Namespace, out: TextIO | None = None) -> int:
 
 def cmd_show(args: argparse.Namespace, out: TextIO | None = None) -> int:
     """One node, its neighbours grouped by edge kind with sources, and a candidate's causal paths."""
-    from .tables import find_nodes, load_graph_view, load_tables
+    from .tables import find_nodes
 
     out = out or sys.stdout
-    t = load_tables(args.dir)
-    view = load_graph_view(args.dir)
+    got = _tables(args, graph_view=True)
+    if got is None:
+        return 2
+    t, view = got
     hits = find_nodes(t, args.id, view["lookup"])
     if not hits:
         print(f"knowledge show: no node matches {args.id!r} (expected a node id, name, synonym, gene, INN, "

@@ -130,7 +130,9 @@ def compile_knowledge(kn: Knowledge, key: str = "") -> dict:
         "lookup": lookup,
         "consistency": {
             "compared": report.compared, "agreed": report.agreed, "rate": report.rate,
-            "lean_agreements": report.lean_agreements, "min_agreement": report.min_agreement,
+            "strict_rate": report.strict_rate,
+            "lean_agreements": report.lean_agreements, "bound_agreements": report.bound_agreements,
+            "min_agreement": report.min_agreement,
             "disagreements": [{"candidate": c.candidate, "variable": c.variable, "predicted": list(c.predicted),
                                "curated": c.curated, "most_likely": c.most_likely, "reason": c.reason,
                                "note": c.note} for c in report.disagreements],

@@ -11,6 +11,9 @@ variable.  The curated side of a variable is read from the candidate's manifest:
   its size, so the pair agrees when the remaining mass leans the predicted way
   (P(direction = predicted) > P(direction = -predicted)); such agreements are counted apart
   (`lean_agreements`) so the report shows them;
+* a variable with no state in the predicted direction (polyuria has present +1 and absent 0, no
+  state below normal) agrees when the most likely state is its bound on that side (polyuria absent
+  for a predicted fall); counted apart too (`bound_agreements`);
 * a variable reached by shortest paths of both signs (`ambiguous`) does not agree.
 
 Pairs compared = variables both reached and curated with a direction.  A pair that does not agree is
@@ -42,7 +45,7 @@ class Comparison:
     curated: int
     most_likely: str
     agrees: bool
-    by_lean: bool
+    rule: str  # sign | lean | bound | ambiguous
     reason: str | None = None
     note: str | None = None
 
@@ -66,11 +69,20 @@ class ConsistencyReport:
 
     @property
     def lean_agreements(self) -> int:
-        return sum(c.agrees and c.by_lean for c in self.comparisons)
+        return sum(c.agrees and c.rule == "lean" for c in self.comparisons)
+
+    @property
+    def bound_agreements(self) -> int:
+        return sum(c.agrees and c.rule == "bound" for c in self.comparisons)
 
     @property
     def rate(self) -> float:
         return self.agreed / self.compared if self.comparisons else 1.0
+
+    @property
+    def strict_rate(self) -> float:
+        """Agreement counting only pairs whose most likely state itself moves the predicted way."""
+        return sum(c.agrees and c.rule == "sign" for c in self.comparisons) / self.compared if self.comparisons else 1.0
 
     @property
     def disagreements(self) -> tuple[Comparison, ...]:
@@ -113,13 +125,17 @@ def compare_candidate(kn: Knowledge, g: nx.MultiDiGraph, cid: str,
         if pred is None:
             missing.append(vid)
             continue
+        directions = set(kn.variables[vid].direction.values())
         if pred.ambiguous:
-            agrees, by_lean = False, False
+            agrees, rule = False, "ambiguous"
         elif sign != 0:
-            agrees, by_lean = pred.sign == sign, False
+            agrees, rule = pred.sign == sign, "sign"
+        elif pred.sign not in directions:
+            bound = max(directions) if pred.sign > 0 else min(directions)
+            agrees, rule = sign == bound, "bound"
         else:
-            agrees, by_lean = lean * pred.sign > 0, True
-        out.append(Comparison(cid, vid, pred.signs, sign, state, agrees, by_lean))
+            agrees, rule = lean * pred.sign > 0, "lean"
+        out.append(Comparison(cid, vid, pred.signs, sign, state, agrees, rule))
     return out, missing
 
 

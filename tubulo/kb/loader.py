@@ -216,6 +216,9 @@ def check_knowledge(folder: Path | str | None = None) -> tuple[Knowledge | None,
         if f is None:
             continue
         files.append(path.name)
+        if path.name == "variables.yaml":
+            special[path.name] = _read_variables(f, problems)
+            continue
         if path.name in _SPECIAL:
             special[path.name] = _validate(_SPECIAL[path.name], f.data, f, (), "", problems)
             continue
@@ -295,6 +298,27 @@ def load_knowledge(folder: Path | str | None = None) -> Knowledge:
         err.problems = tuple(errors)  # type: ignore[attr-defined]
         raise err
     return kn
+
+
+def _read_variables(f: _File, problems: list[Problem]) -> S.VariablesFile | None:
+    """Validate variable by variable, so one faulty variable does not hide the others from the
+    cross-checks (a variable whose faulty fields are optional is kept for them; it stays an error)."""
+    data = f.data
+    if not isinstance(data, dict) or not isinstance(data.get("variables"), dict):
+        problems.append(Problem(f"{f.name}:1", "expected `version` and a mapping `variables`"))
+        return None
+    for key in sorted(set(data) - {"version", "variables"}):
+        problems.append(Problem(f"{f.name}:{f.line((key,))}", f"unknown top-level field {key!r}"))
+    if not isinstance(data.get("version"), int):
+        problems.append(Problem(f"{f.name}:1", f"field version: expected an integer, got {data.get('version')!r}"))
+    variables: dict[str, S.Variable] = {}
+    for vid, raw in data["variables"].items():
+        partial: list = []
+        v = _validate(S.Variable, raw, f, ("variables", vid), f"variable {vid!r}: ", problems, partial)
+        v = v if v is not None else (partial[0] if partial else None)
+        if v is not None:
+            variables[str(vid)] = v
+    return S.VariablesFile.model_construct(version=data.get("version") or 0, variables=variables)
 
 
 # ---------------------------------------------------------------- cross-file checks

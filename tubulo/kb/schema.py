@@ -335,6 +335,7 @@ class Variable(_Strict):
     gate: Gate | None = None
     background: dict[str, Prob]
     cost: Literal["bedside", "routine", "special", "genetic"]
+    test: str | None = None  # what to order or do to observe the variable (shown with next tests)
     notes: str | None = None
 
     @model_validator(mode="after")
@@ -405,7 +406,7 @@ class HpoExceptions(_Strict):
 
 
 ConsistencyReason = Literal[
-    "compensation", "opposing_pathways", "extrarenal", "gate", "timing", "model_gap", "curation",
+    "compensation", "opposing_pathways", "extrarenal", "gate", "timing", "indication", "model_gap", "curation",
 ]
 
 

@@ -32,7 +32,8 @@ Layout (`tables_version` 1):
   adjacency       {node id: {out: [edge], in: [edge]}}; an edge is {from, to, kind, source, and
                    sign / effect / side / note / origin where they apply}, the same dict at both ends
   lookup          {lower-case id, label, synonym, xref, INN, ATC, gene symbol: [node ids]}
-  consistency     {compared, agreed, rate, lean_agreements, min_agreement, disagreements [...]}
+  consistency     {compared, agreed, rate, strict_rate, lean_agreements, bound_agreements, min_agreement,
+                   disagreements [...]}
 """
 
 from __future__ import annotations

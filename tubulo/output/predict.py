@@ -8,7 +8,14 @@ from typing import Any, Mapping
 
 from ..errors import TubuloError
 from ..vocab import fold
+from ..scoring import state_probability
 from .check import CAUTION
+
+
+def FEATURE_BG() -> float:
+    from ..scoring import _priors_conf
+
+    return float(_priors_conf()["feature_background"])
 
 __all__ = ["resolve_candidate", "predict_document", "predict_text"]
 
@@ -33,10 +40,12 @@ def resolve_candidate(tables: Mapping[str, Any], name: str) -> str:
             names.setdefault(fold(n), cid)
         for x in c.get("xrefs") or []:
             names.setdefault(fold(x), cid)
+    for drug_name, hits in (tables.get("drug_index") or {}).items():
+        names.setdefault(fold(drug_name), hits[0]["class"])
     if key in names:
         return names[key]
     close = difflib.get_close_matches(key, list(names), n=3, cutoff=0.6)
-    hint = ("; did you mean " + " or ".join(f"'{cands[names[c]]['name']}' ({names[c]})" for c in close) + "?") if close else ""
+    hint = ("; did you mean " + " or ".join(f"'{c}' ({cands[names[c]]['name']})" for c in close) + "?") if close else ""
     raise TubuloError(f"'{name}' is not a drug, exposure or disorder in the knowledge{hint} (see: tubulo knowledge list)")
 
 
@@ -50,17 +59,27 @@ def predict_document(tables: Mapping[str, Any], cid: str) -> dict[str, Any]:
         if var.startswith("HP:"):
             p = float(dist.get("present", 0))
             expected.append({"variable": var, "label": hpo_labels.get(var, var), "state": "present", "probability": p,
+                             "likelihood_ratio": round(p / FEATURE_BG(), 3),
                              "distribution": dict(dist), "path": [], "source": (c.get("manifest_sources") or {}).get(var, "")})
             continue
         spec = variables.get(var, {})
-        state, p = max(dist.items(), key=lambda kv: (kv[1], kv[0]))
+        states = list(spec.get("states") or dist)
+        leak = float(tables["scoring"]["leak"])
+
+        def ratio(s: str) -> float:
+            bg = state_probability(spec.get("background"), states, s, leak)
+            return state_probability(dist, states, s, leak) / bg
+
+        state = max(states, key=lambda s: (ratio(s), s))
+        p = state_probability(dist, states, state, leak)
         entry = paths.get(var) or {}
-        expected.append({"variable": var, "label": spec.get("label", var), "state": state, "probability": p,
+        expected.append({"variable": var, "label": spec.get("label", var), "state": state, "probability": round(p, 4),
+                         "likelihood_ratio": round(ratio(state), 3),
                          "distribution": dict(dist), "path": [{k: s.get(k) for k in ("node", "label", "sign", "source")}
                                                               for s in entry.get("steps") or []],
                          "predicted_direction": entry.get("predicted"),
                          "source": (c.get("manifest_sources") or {}).get(var, "")})
-    expected.sort(key=lambda e: (-e["probability"], e["variable"]))
+    expected.sort(key=lambda e: (-e["likelihood_ratio"], e["variable"]))
     return {"id": cid, "name": c["name"], "kind": c["kind"], "xrefs": list(c.get("xrefs") or []),
             "genes": list(c.get("genes") or []), "segments": list(c.get("segments") or []),
             "members": [m.get("inn") for m in c.get("members") or []],
@@ -80,9 +99,9 @@ def predict_text(tables: Mapping[str, Any], cid: str, as_json: bool = False) -> 
     for a in doc["acts_on"]:
         lines.append(f"  acts on {a['target']}: {a['effect']}  ({a['source']})")
     lines.append("")
-    lines.append("expected findings (most likely state, probability)")
+    lines.append("expected findings, most telling first (state, probability, likelihood ratio against the referred population)")
     for e in doc["expected"]:
-        lines.append(f"  {e['label']}: {e['state'].replace('_', ' ')} ({e['probability']:.2f})")
+        lines.append(f"  {e['label']}: {e['state'].replace('_', ' ')} (p {e['probability']:.2f}, LR {e['likelihood_ratio']:.1f})")
         if e["path"]:
             lines.append("      via " + " → ".join(str(s.get("label") or s.get("node")) for s in e["path"]))
     lines.append("")
