@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from typing import Any, Mapping, Sequence
 
 from .findings import Findings, _gate_holds, feature_terms, variables_spec
-from .scoring import RESIDUAL_ID, Scored, _priors_conf, state_probability
+from .scoring import RESIDUAL_ID, Scored, _priors_conf, compiled_likelihoods, state_probability
 
 __all__ = ["NextTest", "next_tests"]
 
@@ -28,14 +28,28 @@ def _entropy(ps: Sequence[float]) -> float:
     return -sum(p * math.log2(p) for p in ps if p > 0)
 
 
+_BG: dict[tuple, list[float]] = {}
+
+
+def _background_list(tid: int, var: str, states: tuple[str, ...], leak: float, spec) -> list[float]:
+    key = (tid, var, states, leak)
+    if key not in _BG:
+        if len(_BG) > 4096:
+            _BG.clear()
+        _BG[key] = [state_probability(spec.get("background"), list(states), s, leak) for s in states]
+    return _BG[key]
+
+
 def _dist(tables, cid: str, var: str) -> list[float]:
     """P(state | candidate) over the variable's states (background when the candidate is silent)."""
     leak = float(tables["scoring"]["leak"])
     spec = tables["variables"].get(var)
     if spec is not None:
         states = list(spec["states"])
-        m = None if cid == RESIDUAL_ID else (tables["candidates"][cid].get("manifests") or {}).get(var)
-        return [state_probability(m or spec.get("background"), states, s, leak) for s in states]
+        row = None if cid == RESIDUAL_ID else compiled_likelihoods(tables)[cid][0].get(var)
+        if row is not None:
+            return [row[s][0] for s in states]
+        return _background_list(id(tables), var, tuple(states), leak, spec)
     fb = float(_priors_conf()["feature_background"])
     m = None if cid == RESIDUAL_ID else (tables["candidates"][cid].get("manifests") or {}).get(var)
     p = (1 - leak) * float(m.get("present", fb)) + leak / 2 if m else fb

@@ -90,7 +90,11 @@ def observations(findings: Findings, tables: Mapping[str, Any]) -> dict[str, str
     return obs
 
 
-def _hpo_ancestors(hid: str, terms: Mapping[str, Any]) -> set[str]:
+@cache
+def _hpo_ancestors(hid: str) -> frozenset[str]:
+    from .vocab import hpo_terms
+
+    terms = hpo_terms()
     out: set[str] = set()
     stack = [hid]
     while stack:
@@ -101,54 +105,92 @@ def _hpo_ancestors(hid: str, terms: Mapping[str, Any]) -> set[str]:
             if p not in out:
                 out.add(p)
                 stack.append(p)
-    return out
+    return frozenset(out)
 
 
-def _feature_state(key: str, obs: Mapping[str, str], expand: Mapping[str, set[str]]) -> str | None:
+@dataclass(frozen=True)
+class _ObsContext:
+    """The observations in the shapes the scorer needs (built once per case)."""
+
+    items: tuple[tuple[str, str], ...]  # sorted (variable, state), variables only
+    present_closure: frozenset[str]  # present HPO features and all their ancestors
+    absent: frozenset[str]  # HPO features looked for and absent
+    direct: Mapping[str, str]  # HPO id -> state as given
+
+
+def _context(obs: Mapping[str, str]) -> _ObsContext:
+    items = tuple(sorted((k, v) for k, v in obs.items() if not k.startswith("HP:")))
+    present = {k for k, v in obs.items() if k.startswith("HP:") and v == "present"}
+    closure = set(present)
+    for h in present:
+        closure |= _hpo_ancestors(h)
+    absent = frozenset(k for k, v in obs.items() if k.startswith("HP:") and v == "absent")
+    direct = {k: v for k, v in obs.items() if k.startswith("HP:")}
+    return _ObsContext(items, frozenset(closure), absent, direct)
+
+
+def _feature_state(key: str, ctx: _ObsContext) -> str | None:
     """Observed state of a candidate's HPO key: a present descendant counts as present (true-path rule),
     an absent ancestor as absent."""
-    if key in obs:
-        return obs[key]
-    for hid, ancestors in expand.items():
-        if obs.get(hid) == "present" and key in ancestors:
-            return "present"
-    for hid, state in obs.items():
-        if state == "absent" and hid.startswith("HP:") and hid in expand.get(key, set()):
-            return "absent"
+    if key in ctx.direct:
+        return ctx.direct[key]
+    if key in ctx.present_closure:
+        return "present"
+    if ctx.absent and ctx.absent & _hpo_ancestors(key):
+        return "absent"
     return None
 
 
-def likelihood_table(cand: Mapping[str, Any], obs: Mapping[str, str], tables: Mapping[str, Any]) -> list[Evidence]:
-    """Per observed variable: P(state | candidate), P(state | background) and the capped log ratio."""
-    scoring = tables["scoring"]
-    leak, cap = float(scoring["leak"]), float(scoring["llr_cap"])
-    variables = tables["variables"]
-    manifests = cand.get("manifests") or {}
-    fb = float(_priors_conf()["feature_background"])
-    from .vocab import hpo_terms
+_COMPILED: dict[int, tuple[Any, dict]] = {}
 
-    terms = hpo_terms()
-    feature_keys = [k for k in manifests if k.startswith("HP:") and k not in feature_terms()]
-    expand = {h: _hpo_ancestors(h, terms) for h in list(obs) + feature_keys if h.startswith("HP:")}
+
+def compiled_likelihoods(tables: Mapping[str, Any]) -> dict:
+    """Per candidate: {variable: {state: (P(s|c), P(s|bg))}} and [(HPO key, P(present|c))], computed once per tables."""
+    hit = _COMPILED.get(id(tables))
+    if hit is not None and hit[0] is tables:
+        return hit[1]
+    scoring = tables["scoring"]
+    leak = float(scoring["leak"])
+    variables = tables["variables"]
+    terms = feature_terms()
+    out: dict[str, Any] = {}
+    for cid, cand in tables["candidates"].items():
+        var_rows: dict[str, dict[str, tuple[float, float]]] = {}
+        feats: list[tuple[str, float]] = []
+        for key, m in (cand.get("manifests") or {}).items():
+            if key.startswith("HP:"):
+                if key not in terms:
+                    present = float((m or {}).get("present", 0.0))
+                    feats.append((key, (1.0 - leak) * present + leak / 2))
+                continue
+            spec = variables.get(key)
+            if spec is None or not m:
+                continue
+            states = list(spec["states"])
+            var_rows[key] = {st: (state_probability(m, states, st, leak), _background(spec, st, leak)) for st in states}
+        out[cid] = (var_rows, sorted(feats))
+    _COMPILED.clear()
+    _COMPILED[id(tables)] = (tables, out)
+    return out
+
+
+def likelihood_table(cid: str, obs: Mapping[str, str] | _ObsContext, tables: Mapping[str, Any]) -> list[Evidence]:
+    """Per observed variable: P(state | candidate), P(state | background) and the capped log ratio."""
+    cap = float(tables["scoring"]["llr_cap"])
+    fb = float(_priors_conf()["feature_background"])
+    ctx = obs if isinstance(obs, _ObsContext) else _context(obs)
+    var_rows, feats = compiled_likelihoods(tables)[cid]
     out: list[Evidence] = []
-    for var, state in sorted(obs.items()):
-        if var.startswith("HP:"):
-            continue
-        spec = variables.get(var)
-        if spec is None or state not in spec["states"]:
-            continue
-        m = manifests.get(var)
-        if not m:
+    for var, state in ctx.items:
+        row = var_rows.get(var)
+        if row is None or state not in row:
             continue  # silent: background on both sides, ratio 1
-        p = state_probability(m, list(spec["states"]), state, leak)
-        q = _background(spec, state, leak)
+        p, q = row[state]
         out.append(Evidence(var, state, _llr(p, q, cap), p, q))
-    for key in sorted(feature_keys):
-        state = _feature_state(key, obs, expand)
+    for key, p_present in feats:
+        state = _feature_state(key, ctx)
         if state is None:
             continue
-        present = float((manifests[key] or {}).get("present", 0.0))
-        p_present = (1.0 - leak) * present + leak / 2
         p = p_present if state == "present" else 1.0 - p_present
         q = fb if state == "present" else 1.0 - fb
         out.append(Evidence(key, state, _llr(p, q, cap), p, q))
@@ -214,14 +256,14 @@ def priors(case: Case, tables: Mapping[str, Any]) -> dict[str, tuple[float, tupl
 
 def score(case: Case, findings: Findings, tables: Mapping[str, Any]) -> list[Scored]:
     """Every candidate with its posterior probability, sorted (probability desc, id asc)."""
-    obs = observations(findings, tables)
+    obs = _context(observations(findings, tables))
     pri = priors(case, tables)
     # evidence weight < 1 tempers naive-Bayes over-confidence from correlated findings (calibration)
     weight = float(tables["scoring"].get("evidence_weight", _priors_conf().get("evidence_weight", 1.0)))
     rows = []
     for cid in sorted(pri):
         w, notes = pri[cid]
-        evidence = () if cid == RESIDUAL_ID else tuple(likelihood_table(tables["candidates"][cid], obs, tables))
+        evidence = () if cid == RESIDUAL_ID else tuple(likelihood_table(cid, obs, tables))
         lp = math.log(w)
         rows.append((cid, lp, lp + weight * sum(e.log_lr for e in evidence), evidence, notes))
     top = max(r[2] for r in rows)

@@ -96,3 +96,10 @@ def test_list_on_invalid_knowledge_is_a_short_error(good_copy, capsys):
     assert rc == 2 and text == ""
     err = capsys.readouterr().err
     assert "1 problem(s)" in err and "mechanisms_bad.yaml:2" in err and "tubulo knowledge check" in err
+
+
+def test_missing_folder(tmp_path, capsys):
+    rc, text = run(["knowledge", "check", "--dir", str(tmp_path / "nowhere")])
+    assert rc == 1 and "knowledge folder not found" in text
+    rc, _ = run(["knowledge", "list", "--dir", str(tmp_path / "nowhere")])
+    assert rc == 2 and "problem(s)" in capsys.readouterr().err

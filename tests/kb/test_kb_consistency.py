@@ -103,11 +103,11 @@ def test_bound_rule_for_a_variable_without_a_lower_state(good_copy):
     kn = load_knowledge(good_copy)
     rep = consistency_report(kn, build_graph(kn))
     pol = [c for c in rep.comparisons if (c.candidate, c.variable) == ("bartter_type1", "polyuria")]
-    # gain of NKCC2 predicts less urine; curated 'present' 0.9 is not the bound 'absent': disagreement
-    assert pol and pol[0].rule == "bound" and not pol[0].agrees
+    # gain of NKCC2 predicts less urine; curated 'present' (+1) most likely: a plain disagreement
+    assert pol and pol[0].rule == "sign" and not pol[0].agrees
     p.write_text(p.read_text().replace("polyuria: {states: {present: 0.9, absent: 0.1}",
                                        "polyuria: {states: {present: 0.05, absent: 0.95}"))
     kn = load_knowledge(good_copy)
     rep = consistency_report(kn, build_graph(kn))
     pol = [c for c in rep.comparisons if (c.candidate, c.variable) == ("bartter_type1", "polyuria")]
-    assert pol[0].agrees and rep.bound_agreements == 1
+    assert pol[0].rule == "bound" and pol[0].agrees and rep.bound_agreements == 1

@@ -114,3 +114,12 @@ def test_warm_load_imports_no_heavy_module(tmp_path):
     assert "pydantic" in cold.stdout.split()[1]  # the cold build really compiled
     warm = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
     assert warm.stdout.split() == ["5", "-"], warm.stdout + warm.stderr
+
+
+def test_hpo_labels_from_subset_file(good_copy):
+    (good_copy / "hpo_subset.json").write_text(json.dumps({
+        "hpo_release": "hp/releases/2025-01-16",
+        "terms": {"HP:0000934": {"label": "Chondrocalcinosis"}, "HP:0000001": {"label": "All"}}}))
+    t = build_tables(good_copy)
+    assert t["hpo_labels"] == {"HP:0000934": "Chondrocalcinosis"}  # only the ids the knowledge uses
+    assert t["nodes"]["HP:0000934"]["label"] == "Chondrocalcinosis"

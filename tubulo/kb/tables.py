@@ -39,7 +39,6 @@ Layout (`tables_version` 1):
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
 
 __all__ = ["load_tables", "load_graph_view", "folder_hash", "find_nodes", "TABLES_VERSION", "GRAPH_VIEW_KEYS"]
 
@@ -67,7 +66,7 @@ def _key(folder: Path | str | None) -> str:
     return (knowledge_hash() if folder is None else "f" + folder_hash(Path(folder))) + f"-t{TABLES_VERSION}"
 
 
-def _build_both(folder: Path | str | None, key: str) -> tuple[dict[str, Any], dict[str, Any]]:
+def _build_both(folder: Path | str | None, key: str) -> tuple[dict[str, object], dict[str, object]]:
     """Compile once; store the graph view in its own cache entry and return (core, graph view)."""
     from ..cache import cached
     from .compile import build_tables
@@ -78,7 +77,7 @@ def _build_both(folder: Path | str | None, key: str) -> tuple[dict[str, Any], di
     return full, view
 
 
-def load_tables(folder: Path | str | None = None) -> dict[str, Any]:
+def load_tables(folder: Path | str | None = None) -> dict[str, object]:
     """The compiled tables of the installed knowledge (or of `folder`), from cache when warm.
 
     `adjacency` and `lookup` (used by `tubulo knowledge show`) are kept in a second cache entry so a
@@ -89,7 +88,7 @@ def load_tables(folder: Path | str | None = None) -> dict[str, Any]:
     return cached("tables", lambda: _build_both(folder, key)[0], key=key)
 
 
-def load_graph_view(folder: Path | str | None = None) -> dict[str, Any]:
+def load_graph_view(folder: Path | str | None = None) -> dict[str, object]:
     """{adjacency, lookup} of the compiled tables (see the layout above), from cache when warm."""
     from ..cache import cached
 
@@ -97,7 +96,7 @@ def load_graph_view(folder: Path | str | None = None) -> dict[str, Any]:
     return cached("tables_graph", lambda: _build_both(folder, key)[1], key=key)
 
 
-def find_nodes(tables: dict[str, Any], query: str, lookup: dict[str, list[str]] | None = None) -> list[str]:
+def find_nodes(tables: dict[str, object], query: str, lookup: dict[str, list[str]] | None = None) -> list[str]:
     """Node ids matching `query`: an exact id first, else a case-insensitive name, synonym or xref
     (from `lookup` of the graph view; `tables["lookup"]` when the tables were compiled whole)."""
     if query in tables["nodes"]:
