@@ -208,6 +208,8 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--json", action="store_true", help="machine-readable output")
     args = ap.parse_args(argv)
 
+    import yaml
+
     from tubulo.errors import TubuloError
     from tubulo.rank import load_tables
 
@@ -224,7 +226,9 @@ def main(argv: list[str] | None = None) -> int:
             outs.append(run_one(path, tables))
         except (TubuloError, ValueError, OSError) as exc:
             errors.append({"file": path.name, "problem": " ".join(str(exc).split())})
-        except Exception as exc:  # a YAML syntax error or an engine fault: report it, keep going
+        except yaml.YAMLError as exc:
+            errors.append({"file": path.name, "problem": f"not valid YAML: {' '.join(str(exc).split())}"})
+        except Exception as exc:  # an engine fault: report it with its type, keep going
             errors.append({"file": path.name, "problem": f"{type(exc).__name__}: {' '.join(str(exc).split())}"})
     s = summarize(outs, errors, folder)
     if args.json:

@@ -14,8 +14,10 @@ folder (hp.obo; Köhler S et al. 2021 Nucleic Acids Res "The Human Phenotype Ont
 from __future__ import annotations
 
 import importlib.util
+import json
 import math
 import re
+import sys
 from functools import lru_cache
 from pathlib import Path
 
@@ -141,3 +143,47 @@ def test_vignette_ranks(path):
         assert not critical, (f"{path.name}: not marked critical but tubulo raised "
                               f"{[c.message for c in critical]}")
     assert any(c.id == "decision_support" for c in result.cautions)
+
+
+# ------------------------------------------------------------------ the benchmark script itself
+
+
+def _bench():
+    spec = importlib.util.spec_from_file_location("tubulo_bench_accuracy",
+                                                  FOLDER.parents[1] / "bench" / "accuracy.py")
+    mod = importlib.util.module_from_spec(spec)
+    sys.modules[spec.name] = mod  # dataclasses look their module up while the file executes
+    spec.loader.exec_module(mod)
+    return mod
+
+
+def test_brier_score_by_its_definition():
+    """Multi-class Brier score, sum over classes of (p - y)^2 (Brier GW 1950 Monthly Weather Review)."""
+    acc = _bench()
+    o = acc.Outcome(file="f", case_id="c", expected=("a", "b"), kind="inherited", difficulty="typical",
+                    critical=False, critical_raised=False, rank=2, top3=(), probabilities=(("c", 0.5), ("a", 0.3),
+                                                                                           ("b", 0.2)))
+    # intended answer alone: (0.3-1)^2 + 0.5^2 + 0.2^2 = 0.49 + 0.25 + 0.04
+    assert math.isclose(acc.brier(o, merge_expected=False), 0.78)
+    # a and b merged into one class of p 0.5: (0.5-1)^2 + 0.5^2
+    assert math.isclose(acc.brier(o, merge_expected=True), 0.5)
+    rel = acc.reliability([o])
+    assert [r["n"] for r in rel] == [0, 0, 1, 1, 0, 1, 0, 0, 0, 0]
+    assert rel[5]["observed"] == 0.0 and rel[3]["observed"] == 1.0 and rel[2]["observed"] == 1.0
+
+
+def test_benchmark_runs_another_folder_and_lists_bad_files(tmp_path, capsys):
+    """`--dir` runs a held-out folder; a bad file is listed with its problem, not a traceback."""
+    acc = _bench()
+    good = FILES[0]
+    (tmp_path / good.name).write_text(good.read_text(encoding="utf-8"), encoding="utf-8")
+    (tmp_path / "unknown-id.yaml").write_text(
+        "vignette: {expected: [no_such_candidate], critical: false, difficulty: typical}\ncase: {case: x}\n",
+        encoding="utf-8")
+    (tmp_path / "broken.yaml").write_text("vignette: [\n", encoding="utf-8")
+    assert acc.main(["--dir", str(tmp_path), "--json"]) == 1
+    out = json.loads(capsys.readouterr().out)
+    assert out["n"] == 1
+    assert {e["file"] for e in out["errors"]} == {"unknown-id.yaml", "broken.yaml"}
+    assert "no_such_candidate" in next(e["problem"] for e in out["errors"] if e["file"] == "unknown-id.yaml")
+    assert sum(r["n"] for r in out["reliability"]) == len(_tables()["candidates"]) + 1  # candidates + residual

@@ -12,16 +12,14 @@ import functools
 import hashlib
 import os
 import pickle
-import tempfile
 from pathlib import Path
-from typing import Any, Callable, Iterable
 
 from . import __version__
 from .paths import knowledge_dir
 
 __all__ = ["cache_dir", "cached", "knowledge_hash"]
 
-_MEMORY: dict[str, Any] = {}
+_MEMORY: dict = {}
 
 
 def cache_dir() -> Path:
@@ -45,7 +43,7 @@ def knowledge_hash(patterns: tuple[str, ...] = ("*.yaml", "*.txt", "*.json")) ->
     return h.hexdigest()[:20]
 
 
-def cached(name: str, builder: Callable[[], Any], key: str | None = None) -> Any:
+def cached(name: str, builder, key: str | None = None):
     """Return the object `builder()` makes, from the on-disk cache when its key matches."""
     key = key or knowledge_hash()
     mem_key = f"{name}-{key}"
@@ -68,7 +66,9 @@ def cached(name: str, builder: Callable[[], Any], key: str | None = None) -> Any
     return obj
 
 
-def _write_atomic(path: Path, obj: Any) -> None:
+def _write_atomic(path: Path, obj) -> None:
+    import tempfile
+
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
         fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=path.name, suffix=".tmp")

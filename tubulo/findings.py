@@ -117,9 +117,13 @@ def _from_rules(workup: Workup, variable: str, rule: Mapping[str, Any], spec: Ma
         value, flag, unit = _input_value(workup, name)
         if value is None:
             continue
+        if method.get("interval") and isinstance(value, (int, float)):
+            case = workup.case
+            iv = reference_interval(method["interval"], case.patient.age_years, case.patient.sex)
+            flag = classify(value, iv) if iv else None
+        if flag is None and any("flag" in c for c in method["states"]):
+            continue  # no reference interval for this age: unobserved, never read as normal
         for cond in method["states"]:
-            if "flag" in cond and flag is None:
-                continue  # no interval for this age: try the next condition
             if _matches(cond, value, flag):
                 state = cond["state"]
                 inputs = {name: value} if isinstance(value, (int, float)) else {}

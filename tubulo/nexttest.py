@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from typing import Any, Mapping, Sequence
 
 from .findings import Findings, _gate_holds, feature_terms, variables_spec
-from .scoring import RESIDUAL_ID, Scored, _priors_conf, compiled_likelihoods, state_probability
+from .scoring import RESIDUAL_ID, Scored, _priors_conf, compiled_likelihoods, feature_background, state_probability
 
 __all__ = ["NextTest", "next_tests"]
 
@@ -50,7 +50,7 @@ def _dist(tables, cid: str, var: str) -> list[float]:
         if row is not None:
             return [row[s][0] for s in states]
         return _background_list(id(tables), var, tuple(states), leak, spec)
-    fb = float(_priors_conf()["feature_background"])
+    fb = feature_background(tables, var)
     m = None if cid == RESIDUAL_ID else (tables["candidates"][cid].get("manifests") or {}).get(var)
     p = (1 - leak) * float(m.get("present", fb)) + leak / 2 if m else fb
     return [p, 1 - p]

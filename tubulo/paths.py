@@ -27,10 +27,21 @@ def read_knowledge_yaml(name: str):
     """
     from .cache import cached
 
-    parsed = cached("yaml", _parse_all)
+    group = "compile" if _compile_only(name) else "runtime"
+    parsed = cached(f"yaml_{group}", lambda: _parse_all(group))
     if name not in parsed:
         raise FileNotFoundError(knowledge_dir() / name)
     return parsed[name]
+
+
+# Files only the knowledge compiler reads (a case run reads the compiled tables instead); kept in a
+# cache group of their own so a run does not unpickle them.
+_COMPILE_ONLY = ("disorders_", "acquired", "drugs", "mechanisms", "transporters", "segments", "hormones",
+                 "consistency_exceptions", "hpo_exceptions", "exposures")
+
+
+def _compile_only(name: str) -> bool:
+    return name.startswith(_COMPILE_ONLY)
 
 
 def parse_knowledge_file(path: Path):
@@ -42,13 +53,15 @@ def parse_knowledge_file(path: Path):
         return yaml.load(fh, Loader=loader)
 
 
-def _parse_all() -> dict:
+def _parse_all(group: str) -> dict:
     import yaml
 
     from .errors import KnowledgeError
 
     out = {}
     for path in sorted(knowledge_dir().glob("*.yaml")):
+        if _compile_only(path.name) != (group == "compile"):
+            continue
         try:
             out[path.name] = parse_knowledge_file(path)
         except yaml.YAMLError as exc:

@@ -142,6 +142,7 @@ def _feature_state(key: str, ctx: _ObsContext) -> str | None:
 
 
 _COMPILED: dict[int, tuple[Any, dict]] = {}
+_LAYOUT = 2  # raise when the compiled likelihood layout changes, so that old caches are not read
 
 
 def compiled_likelihoods(tables: Mapping[str, Any]) -> dict:
@@ -149,6 +150,20 @@ def compiled_likelihoods(tables: Mapping[str, Any]) -> dict:
     hit = _COMPILED.get(id(tables))
     if hit is not None and hit[0] is tables:
         return hit[1]
+    meta = tables.get("meta") or {}
+    if meta.get("knowledge_hash"):
+        from .cache import cached
+
+        out = cached("likelihoods", lambda: _compile_likelihoods(tables),
+                     key=f"{meta['knowledge_hash']}-{tables['scoring']['leak']}-l{_LAYOUT}")
+    else:  # a hand-made table (tests): compile in memory
+        out = _compile_likelihoods(tables)
+    _COMPILED.clear()
+    _COMPILED[id(tables)] = (tables, out)
+    return out
+
+
+def _compile_likelihoods(tables: Mapping[str, Any]) -> dict:
     scoring = tables["scoring"]
     leak = float(scoring["leak"])
     variables = tables["variables"]
@@ -169,9 +184,25 @@ def compiled_likelihoods(tables: Mapping[str, Any]) -> dict:
             states = list(spec["states"])
             var_rows[key] = {st: (state_probability(m, states, st, leak), _background(spec, st, leak)) for st in states}
         out[cid] = (var_rows, sorted(feats))
-    _COMPILED.clear()
-    _COMPILED[id(tables)] = (tables, out)
+    # A feature's background is the mean of P(present) over all candidates, a silent candidate counting
+    # the floor `feature_background`: a complaint many causes share (fatigue, failure to thrive) then
+    # weighs less than a specific one (deafness, polyhydramnios).
+    floor = float(_priors_conf()["feature_background"])
+    totals: dict[str, float] = {}
+    for _, feats in out.values():
+        for key, p in feats:
+            totals[key] = totals.get(key, 0.0) + (p - floor)
+    n = max(len(out), 1)
+    out[_FEATURE_BG] = {key: max(floor, floor + t / n) for key, t in sorted(totals.items())}
     return out
+
+
+_FEATURE_BG = "\x00feature_background"
+
+
+def feature_background(tables: Mapping[str, Any], key: str) -> float:
+    """P(HPO feature present | referred population) used as the denominator of its likelihood ratio."""
+    return compiled_likelihoods(tables)[_FEATURE_BG].get(key, float(_priors_conf()["feature_background"]))
 
 
 def likelihood_table(cid: str, obs: Mapping[str, str] | _ObsContext, tables: Mapping[str, Any]) -> list[Evidence]:
@@ -187,12 +218,14 @@ def likelihood_table(cid: str, obs: Mapping[str, str] | _ObsContext, tables: Map
             continue  # silent: background on both sides, ratio 1
         p, q = row[state]
         out.append(Evidence(var, state, _llr(p, q, cap), p, q))
+    bgs = compiled_likelihoods(tables)[_FEATURE_BG]
     for key, p_present in feats:
         state = _feature_state(key, ctx)
         if state is None:
             continue
+        f = bgs.get(key, fb)
         p = p_present if state == "present" else 1.0 - p_present
-        q = fb if state == "present" else 1.0 - fb
+        q = f if state == "present" else 1.0 - f
         out.append(Evidence(key, state, _llr(p, q, cap), p, q))
     return out
 

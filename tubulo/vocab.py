@@ -11,6 +11,7 @@ import json
 import re
 from dataclasses import dataclass
 from functools import cache
+from typing import Mapping
 
 from .paths import knowledge_dir, read_knowledge_yaml
 
@@ -76,12 +77,32 @@ def hpo_release() -> str:
     return str(_subset().get("hpo_release", "unknown"))
 
 
+class _Terms(Mapping):
+    """The bundled HPO terms, built into HpoTerm objects only when asked for (fast start)."""
+
+    def __init__(self, raw: dict) -> None:
+        self._raw = raw
+        self._made: dict[str, HpoTerm] = {}
+
+    def __getitem__(self, hid: str) -> HpoTerm:
+        term = self._made.get(hid)
+        if term is None:
+            t = self._raw[hid]
+            term = HpoTerm(hid, t["label"], tuple(t.get("synonyms", ())), tuple(t.get("parents", ())),
+                           bool(t.get("obsolete")))
+            self._made[hid] = term
+        return term
+
+    def __iter__(self):
+        return iter(self._raw)
+
+    def __len__(self) -> int:
+        return len(self._raw)
+
+
 @cache
-def hpo_terms() -> dict[str, HpoTerm]:
-    return {
-        hid: HpoTerm(hid, t["label"], tuple(t.get("synonyms", ())), tuple(t.get("parents", ())), bool(t.get("obsolete")))
-        for hid, t in _subset()["terms"].items()
-    }
+def hpo_terms() -> Mapping[str, HpoTerm]:
+    return _Terms(_subset()["terms"])
 
 
 @cache
@@ -138,6 +159,12 @@ def suggest_phrases(text: str, n: int = 3) -> list[str]:
 
 @cache
 def _drug_index() -> dict[str, DrugMatch]:
+    from .cache import cached
+
+    return cached("drug_index", _build_drug_index)
+
+
+def _build_drug_index() -> dict[str, DrugMatch]:
     try:
         raw = read_knowledge_yaml("drugs.yaml") or {}
     except FileNotFoundError:
@@ -163,6 +190,12 @@ def suggest_drugs(name: str, n: int = 3) -> list[str]:
 
 @cache
 def _exposure_index() -> dict[str, str]:
+    from .cache import cached
+
+    return cached("exposure_index", _build_exposure_index)
+
+
+def _build_exposure_index() -> dict[str, str]:
     try:
         raw = read_knowledge_yaml("exposures.yaml") or {}
     except FileNotFoundError:

@@ -8,14 +8,8 @@ from typing import Any, Mapping
 
 from ..errors import TubuloError
 from ..vocab import fold
-from ..scoring import state_probability
+from ..scoring import feature_background, state_probability
 from .check import CAUTION
-
-
-def FEATURE_BG() -> float:
-    from ..scoring import _priors_conf
-
-    return float(_priors_conf()["feature_background"])
 
 __all__ = ["resolve_candidate", "predict_document", "predict_text"]
 
@@ -59,7 +53,7 @@ def predict_document(tables: Mapping[str, Any], cid: str) -> dict[str, Any]:
         if var.startswith("HP:"):
             p = float(dist.get("present", 0))
             expected.append({"variable": var, "label": hpo_labels.get(var, var), "state": "present", "probability": p,
-                             "likelihood_ratio": round(p / FEATURE_BG(), 3),
+                             "likelihood_ratio": round(p / feature_background(tables, var), 3),
                              "distribution": dict(dist), "path": [], "source": (c.get("manifest_sources") or {}).get(var, "")})
             continue
         spec = variables.get(var, {})
