@@ -286,7 +286,8 @@ def _derived(rows: list[Mapping[str, Any]]) -> tuple[tuple[IndexRow, ...], tuple
             missing.append(Fact(_text(d["label"]), _text(d.get("reason")) or "inputs missing"))
             continue
         shown.append(IndexRow(
-            label=_text(d["label"]), id=_text(d["id"]), value=fmt_number(d["value"]), unit=_text(d["unit"]),
+            label=_text(d["label"]), id=_text(d["id"]), value=fmt_number(d["value"]),
+            unit="" if _text(d["unit"]) == "1" else _text(d["unit"]),  # UCUM "1": a plain ratio
             formula=_text(d["formula"]),
             inputs=tuple(Fact(_text(k), fmt_number(v) if isinstance(v, (int, float)) else _text(v))
                          for k, v in (d.get("inputs") or {}).items()),

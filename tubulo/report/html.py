@@ -257,7 +257,7 @@ def _panel(r: Report) -> str:
         return _section("panel", '<p class="lead">No inherited candidate with a known gene carries weight here; '
                                  "no panel suggested.</p>")
     lead = (f'<p class="lead">Inherited causes hold {_e(percent(p.inherited_mass))} of the probability. '
-            f"These {len(p.cover)} genes cover {_e(percent(p.covered))} of that inherited share "
+            f"{_genes_cover(len(p.cover))} {_e(percent(p.covered))} of that inherited share "
             f"(target {_e(percent(p.target))}; {p.listed} genes carry any share).</p>")
     body = [f'<tr><td class="genes">{_e(g)}</td><td class="num">{_e(percent(m))}</td></tr>' for g, m in p.cover]
     return _section("panel", lead + _table([("Gene (HGNC)", "50%"), ("Share of the inherited probability", "50%")], body))
@@ -267,6 +267,10 @@ def _about(r: Report) -> str:
     facts = list(r.versions) + [Fact("Prepared", r.date)]
     return (f'<footer><section id="about"><h2>{_e(dict(SECTIONS)["about"])}</h2>{_facts(facts)}'
             f'<p class="standing">{_e(r.standing)}</p></section></footer>')
+
+
+def _genes_cover(n: int) -> str:
+    return "This gene covers" if n == 1 else f"These {n} genes cover"
 
 
 def render_html(r: Report) -> str:

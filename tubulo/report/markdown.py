@@ -63,6 +63,10 @@ def _evidence_lines(items: tuple[EvidenceItem, ...], name: str) -> list[str]:
     return out
 
 
+def _genes_cover(n: int) -> str:
+    return "This gene covers" if n == 1 else f"These {n} genes cover"
+
+
 def render_markdown(r: Report) -> str:
     """The whole report as a Markdown string."""
     v = dict((f.label, f.value) for f in r.versions)
@@ -186,7 +190,7 @@ def render_markdown(r: Report) -> str:
     L += [_h("panel"), ""]
     p = r.panel
     if p.cover:
-        L += [f"Inherited causes hold {percent(p.inherited_mass)} of the probability. These {len(p.cover)} genes cover "
+        L += [f"Inherited causes hold {percent(p.inherited_mass)} of the probability. {_genes_cover(len(p.cover))} "
               f"{percent(p.covered)} of that inherited share (target {percent(p.target)}; {p.listed} genes carry any "
               "share).", ""]
         L += _table(["Gene (HGNC)", "Share of the inherited probability"],

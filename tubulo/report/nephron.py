@@ -41,7 +41,7 @@ PARTS: tuple[Part, ...] = (
          "start"),
     Part("tal", "M 340 390 L 340 122 Q 340 90 308 90 L 182 90", 9, "Thick ascending limb", 350, 300, "start"),
     Part("macula_densa", "M 182 90 L 164 90", 13, "Macula densa", 186, 112, "start"),
-    Part("dct1", "M 164 90 C 150 62 168 36 200 40 C 226 44 236 24 262 30", 9, "DCT1", 206, 24, "middle"),
+    Part("dct1", "M 164 90 C 150 62 168 36 200 40 C 226 44 236 24 262 30", 9, "DCT1", 200, 17, "middle"),
     Part("dct2", "M 262 30 C 292 36 298 64 330 54 C 352 47 362 40 384 44", 9, "DCT2", 330, 32, "middle"),
     Part("cnt", "M 384 44 C 420 50 440 72 480 72 L 556 70", 9, "Connecting tubule", 360, 134, "start"),
     Part("ccd", "M 560 30 L 560 250", 12, "Cortical CD", 578, 160, "start"),
@@ -129,7 +129,7 @@ def _label_width(text: str, size: float) -> float:
 
 
 def nephron_svg(placement: Placement, title: str = "Nephron map") -> str:
-    """The schematic as a standalone inline <svg> element (well-formed XML, no external references)."""
+    """The schematic as an inline <svg> element for HTML (well-formed XML, no external references)."""
     marked = dict(placement.parts)
     out: list[str] = [
         '<svg viewBox="0 0 800 520" width="800" height="520" role="img" '
