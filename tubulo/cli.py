@@ -38,7 +38,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print JSON (keys: case, measurements, derived)")
     p.add_argument("--all", action="store_true", help="also list the indices that cannot be computed, with why")
     p.set_defaults(handler=_cmd_check)
-    for module in ("tubulo.kb.cli", "tubulo.engine_cli", "tubulo.report.cli"):
+    for module in ("tubulo.kb.cli", "tubulo.engine_cli", "tubulo.report.cli", "tubulo.screen.cli", "tubulo.ui_cli", "tubulo.interop.cli"):
         try:
             mod = __import__(module, fromlist=["add_subparser"])
         except ImportError:

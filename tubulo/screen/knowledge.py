@@ -37,7 +37,7 @@ from ..workup import _order
 
 __all__ = ["ScreenKnowledge", "IntervalTable", "RuleMethod", "RuleCondition", "compile_knowledge",
            "SEX_CODES", "FLAG_LOW", "FLAG_NORMAL", "FLAG_HIGH", "FLAG_NONE", "MEASUREMENT_SECTIONS",
-           "PATIENT_FIELDS"]
+           "PATIENT_FIELDS", "screen_knowledge"]
 
 SEX_CODES = SEXES  # female, male, other, unknown: the code of a sex is its index here
 FLAG_NONE, FLAG_LOW, FLAG_NORMAL, FLAG_HIGH = -1, 0, 1, 2
@@ -84,6 +84,8 @@ class RuleMethod:
     name: str  # measurement key, index id or category key
     when: tuple[tuple[str, tuple[int, ...]], ...]  # (category key, allowed codes)
     conditions: tuple[RuleCondition, ...]
+    interval: str | None = None  # read the flag against this key's reference interval
+    uses_flag: bool = False  # some condition reads the flag: without an interval the method is skipped
 
 
 @dataclass(frozen=True)
@@ -239,7 +241,14 @@ def _compile_rules(states: Mapping[str, tuple[str, ...]], category_values: Mappi
                 if kind in ("category", "bp") and (bounds or flag is not None):
                     problems.append(f"findings.yaml: {var}: numeric condition on a categorical input")
                 conds.append(RuleCondition(states[var].index(st), is_codes, flag, bounds))
-            methods.append(RuleMethod(kind, key, tuple(when), tuple(conds)))
+            extra = set(method) - {"input", "when", "states", "interval"}
+            if extra:
+                problems.append(f"findings.yaml: {var}: method keys {sorted(extra)} have no matrix form")
+            interval = method.get("interval")
+            if interval is not None and kind not in ("measure", "derived"):
+                interval = None  # a categorical value has no flag (findings._from_rules reads numbers only)
+            methods.append(RuleMethod(kind, key, tuple(when), tuple(conds), interval,
+                                      any("flag" in c for c in method["states"])))
         out[var] = tuple(methods)
     return out
 

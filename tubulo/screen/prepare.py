@@ -34,7 +34,8 @@ from ..errors import CaseError, TubuloError
 from .knowledge import MEASUREMENT_SECTIONS, PATIENT_FIELDS, SEX_CODES, ScreenKnowledge
 from .vector import Batch
 
-__all__ = ["Prepared", "prepare", "parse_column_name", "written_value", "LONG_COLUMNS", "ScreenInputError"]
+__all__ = ["Prepared", "prepare", "parse_column_name", "parse_cell", "written_value", "LONG_COLUMNS",
+           "ScreenInputError"]
 
 LONG_COLUMNS = ("case", "section", "analyte", "value")
 _COLUMN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\.([A-Za-z0-9_]+)\s*(?:\[\s*(.*?)\s*\])?\s*$")
@@ -67,6 +68,17 @@ def written_value(num: float | None, text: str | None, unit: str | None) -> Any:
     return f"{text} {unit}" if unit else text
 
 
+_INT = re.compile(r"^[-+]?\d+$")
+
+
+def _as_written(text: str, unit: str | None) -> Any:
+    """A numeric cell as a case file carries it: "140 mmol/L" with a unit; without one a number, int
+    or float as YAML reads the same digits."""
+    if unit:
+        return f"{text} {unit}"
+    return int(text) if _INT.match(text) else float(text)
+
+
 @dataclass(frozen=True)
 class _Cell:
     """parse_case's reading of one cell: stored values, categories, patient fields, or its problems."""
@@ -87,6 +99,8 @@ def _parse_one(section: str, name: str, raw: Any) -> _Cell:
         case = parse_case({"case": "cell", section: {name: raw}})
     except CaseError as exc:
         return _Cell(raw, problems=tuple(str(p) for p in exc.problems))
+    except Exception as exc:  # a defect of tubulo: the case goes to the single path, which reports it
+        return _Cell(raw, problems=(f"{type(exc).__name__}: {exc}",))
     p = case.patient
     values = [(k, m.value) for k, m in case.measurements.items()]
     if section == "patient":
@@ -162,7 +176,7 @@ def _flat(arr) -> pa.Array:
 
 def _as_strings(arr) -> pa.Array:
     arr = _flat(arr)
-    if not (pa.types.is_string(arr.type) or pa.types.is_large_string(arr.type)):
+    if not pa.types.is_string(arr.type):
         arr = arr.cast(pa.string())
     return arr
 
@@ -213,6 +227,8 @@ class _Builder:
 
     def __init__(self) -> None:
         self.parts: list[tuple[np.ndarray, ...]] = []
+        self.sources: list[tuple[int, pa.Array | None, np.ndarray]] = []  # (first cell, original texts, rows)
+        self.n_cells = 0
         self.wkeys: dict[tuple[str, str], int] = {}
         self.units: dict[str, int] = {}
         self.texts: list[str] = []
@@ -234,6 +250,21 @@ class _Builder:
             self.texts.extend(strings)
         rows = np.flatnonzero(present)
         self.parts.append((case[rows], wkey[rows], unit[rows], num[rows], text_codes[rows]))
+        flat = _flat(values)
+        self.sources.append((self.n_cells, flat if pa.types.is_string(flat.type) or pa.types.is_large_string(flat.type)
+                             else None, rows))
+        self.n_cells += len(rows)
+
+    def original(self, cell: int) -> str | None:
+        """The text a numeric cell had in the extract (None for a typed numeric column)."""
+        import bisect
+
+        at = bisect.bisect_right([s[0] for s in self.sources], cell) - 1
+        start, arr, rows = self.sources[at]
+        if arr is None:
+            return None
+        v = arr[int(rows[cell - start])].as_py()
+        return v.strip() if isinstance(v, str) else None
 
     def arrays(self) -> tuple[np.ndarray, ...]:
         if not self.parts:
@@ -376,7 +407,7 @@ class Prepared:
     problem: np.ndarray  # bool: the case has a problem; parse_case words it
     single: np.ndarray  # bool: valid, but read on the single-case path
     own: dict[int, list[str]]  # problems of the extract that a case file cannot have (filled by `mapping` too)
-    mapping: Callable[[int], dict]  # case i as a case-file mapping, for parse_case
+    mapping: Callable[..., dict]  # case i as a case-file mapping, for parse_case (see prepare.mapping)
     ignored_columns: list[str]
 
     @property
@@ -400,14 +431,15 @@ def prepare(table: pa.Table, layout: str, sk: ScreenKnowledge) -> Prepared:
     n_values, n_cats = len(sk.value_keys), len(sk.category_values)
     sex_slot, preg_slot = n_values + n_cats, n_values + n_cats + 1
     n_slots = preg_slot + 1
-    values = np.full((n, n_values), np.nan)
-    cats = np.full((n, n_cats), -1, dtype=np.int16)
+    values = np.full((n_values, n), np.nan)
+    cats = np.full((n_cats, n), -1, dtype=np.int16)
     sex = np.full(n, _UNKNOWN_SEX, dtype=np.int8)
     problem = np.zeros(n, dtype=bool)
     single = np.zeros(n, dtype=bool)
     problem[list(own)] = True
     problem |= np.asarray(pc.fill_null(pc.equal(pc.utf8_trim_whitespace(ids), ""), True))
     slots: list[tuple[np.ndarray, int]] = []  # (cell indices, stored slot)
+    bad = np.zeros(len(c_case), dtype=bool)  # cells with a problem of their own
 
     def unit_of(u: int) -> str | None:
         return units[u] if u >= 0 else None
@@ -416,13 +448,14 @@ def prepare(table: pa.Table, layout: str, sk: ScreenKnowledge) -> Prepared:
         cases = c_case[at]
         if cell.problems:
             problem[cases] = True
+            bad[at] = True
             return
         for key, v in cell.values:
-            values[cases, sk.value_index[key]] = v
+            values[sk.value_index[key], cases] = v
             slots.append((at, sk.value_index[key]))
         for key, v in cell.categories:
             j = sk.category_index[key]
-            cats[cases, j] = sk.category_values[key].index(v)
+            cats[j, cases] = sk.category_values[key].index(v)
             slots.append((at, n_values + j))
         if cell.sex is not None:
             sex[cases] = SEX_CODES.index(cell.sex)
@@ -441,16 +474,19 @@ def prepare(table: pa.Table, layout: str, sk: ScreenKnowledge) -> Prepared:
         unit = unit_of(u - 1)
         if section in _NOT_READ:
             problem[c_case[sel]] = True
+            bad[sel] = True
             continue
         r = _route(sk, section, name, unit)
         if r.kind == "quantity":
             v = c_num[sel] * r.factor
             ok = (r.lo <= v) & (v <= r.hi)
             problem[c_case[sel[~ok]]] = True
-            values[c_case[sel[ok]], r.slot] = v[ok]
+            bad[sel[~ok]] = True
+            values[r.slot, c_case[sel[ok]]] = v[ok]
             slots.append((sel, r.slot))
         elif r.kind == "problem":
             problem[c_case[sel]] = True
+            bad[sel] = True
         else:
             for _, vpart in _groups(np.unique(c_num[sel], return_inverse=True)[1].reshape(-1)):
                 at = sel[vpart]
@@ -463,27 +499,35 @@ def prepare(table: pa.Table, layout: str, sk: ScreenKnowledge) -> Prepared:
         section, name = wkeys[c_wkey[i]]
         if section in _NOT_READ:
             problem[c_case[at]] = True
+            bad[at] = True
             continue
         apply(parse_cell(section, name, unit_of(c_unit[i]), None, texts[c_text[i]]), at)
 
     # a stored key given twice in a case (an alias, two columns, a repeated row): parse_case decides
     if slots:
-        flat = np.concatenate([c_case[at] * n_slots + s for at, s in slots])
-        u, counts = np.unique(flat, return_counts=True)
-        problem[np.unique(u[counts > 1] // n_slots)] = True
+        cells_at = np.concatenate([at for at, _ in slots])
+        flat = c_case[cells_at] * n_slots + np.repeat([s for _, s in slots], [len(at) for at, _ in slots])
+        counts = np.bincount(flat, minlength=n * n_slots)
+        twice = counts > 1
+        problem[np.flatnonzero(twice) // n_slots] = True
+        bad[cells_at[twice[flat]]] = True
 
     order = np.argsort(c_case, kind="stable")
     starts = np.searchsorted(c_case[order], np.arange(n + 1))
     id_list: list[Any] = []
 
-    def mapping(i: int) -> dict:
+    def mapping(i: int, problems_only: bool = False) -> dict:
         """Case i as a case-file mapping; a key written twice with different values keeps the first
-        and the repeat is reported in `own`, an exact repeat is read once."""
+        and the repeat is reported in `own`, an exact repeat is read once.  `problems_only` keeps the
+        cells that have a problem of their own (parse_case words each such problem from its cell alone,
+        in section and row order, so the message is the one of the whole case)."""
         if not id_list:
             id_list.extend(ids.to_pylist())
         data: dict[str, Any] = {"case": id_list[i]}
         seen: dict[tuple[str, str], Any] = {}
         for c in order[starts[i]:starts[i + 1]].tolist():
+            if problems_only and not bad[c]:
+                continue
             section, name = wkeys[c_wkey[c]]
             unit = unit_of(c_unit[c])
             if section in _NOT_READ:
@@ -495,7 +539,8 @@ def prepare(table: pa.Table, layout: str, sk: ScreenKnowledge) -> Prepared:
             if c_text[c] >= 0:
                 raw = parse_cell(section, name, unit, None, texts[c_text[c]]).raw
             else:
-                raw = written_value(c_num[c], None, unit)
+                text = b.original(c)
+                raw = written_value(c_num[c], None, unit) if text is None else _as_written(text, unit)
             if (section, name) in seen:
                 if seen[(section, name)] != raw:
                     msg = f"{section}.{name}: given more than once ({seen[(section, name)]!r} and {raw!r}); keep one"

@@ -17,7 +17,8 @@ from ..scoring import score
 from ..workup import assess
 from .knowledge import ScreenKnowledge
 
-__all__ = ["RowResult", "screen_mapping", "abnormal_findings", "critical_items"]
+__all__ = ["RowResult", "screen_mapping", "abnormal_findings", "critical_items", "internal_error", "INTERNAL",
+           "problems_text"]
 
 
 @dataclass(frozen=True)
@@ -48,6 +49,14 @@ def critical_items(caution_list) -> tuple[tuple[str, ...], tuple[str, ...]]:
     return tuple(c.message for c in crit), tuple(c.id.split(":", 1)[1] for c in crit)
 
 
+INTERNAL = "internal error"
+
+
+def internal_error(exc: Exception) -> str:
+    return (f"{INTERNAL}: tubulo failed on this case ({type(exc).__name__}: {exc}); the case was not screened. "
+            "Please report it with the row")
+
+
 def problems_text(problems) -> str:
     return " | ".join(str(p) for p in problems)
 
@@ -59,6 +68,8 @@ def screen_mapping(sk: ScreenKnowledge, data: Mapping[str, Any], own: list[str] 
         case = parse_case(data)
     except CaseError as exc:
         return RowResult(problems_text(list(own or []) + [str(p) for p in exc.problems]))
+    except Exception as exc:  # a defect of tubulo, not of the row: reported, and the run goes on
+        return RowResult(internal_error(exc))
     if own:
         return RowResult(problems_text(own))
     try:
@@ -68,6 +79,8 @@ def screen_mapping(sk: ScreenKnowledge, data: Mapping[str, Any], own: list[str] 
         msgs, keys = critical_items(cautions(workup, findings))
     except TubuloError as exc:
         return RowResult(f"the case could not be scored: {exc}")
+    except Exception as exc:
+        return RowResult(internal_error(exc))
     names = dict(zip(sk.candidates, sk.names))
     top = tuple((s.id, names[s.id], s.probability) for s in scored[:k])
     return RowResult(None, msgs, keys, abnormal_findings(sk, findings.variables), top)

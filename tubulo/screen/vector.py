@@ -24,7 +24,7 @@ import numpy as np
 from ..reference import BP_CATEGORIES
 from .knowledge import FLAG_HIGH, FLAG_LOW, FLAG_NONE, FLAG_NORMAL, SEX_CODES, ScreenKnowledge
 
-__all__ = ["Batch", "Evaluated", "evaluate", "top_candidates", "age_segments"]
+__all__ = ["Batch", "Evaluated", "evaluate", "top_candidates", "age_segments", "pattern_keys"]
 
 _NEUMAIER = sys.version_info >= (3, 12)  # the interpreter's float sum() is compensated from 3.12 on
 _F, _M = SEX_CODES.index("female"), SEX_CODES.index("male")
@@ -34,19 +34,22 @@ _F, _M = SEX_CODES.index("female"), SEX_CODES.index("male")
 class Batch:
     """Validated cases: values in internal units (NaN = not measured), category codes (-1 = not given)."""
 
-    values: np.ndarray  # (n, len(sk.value_keys))
-    categories: np.ndarray  # (n, len(sk.category_values)) int16
+    values: np.ndarray  # (len(sk.value_keys), n): one contiguous row per key
+    categories: np.ndarray  # (len(sk.category_values), n) int16
     sex: np.ndarray  # (n,) int8 code in SEX_CODES
 
     @property
     def n(self) -> int:
-        return int(self.values.shape[0])
+        return int(self.values.shape[1])
+
+    def take(self, rows: np.ndarray) -> "Batch":
+        return Batch(self.values[:, rows], self.categories[:, rows], self.sex[rows])
 
 
 @dataclass(frozen=True)
 class Evaluated:
     states: np.ndarray  # (n, n_variables) int8 state codes, -1 unobserved (after gates)
-    critical: list[list[tuple[str, str, float, float]]]  # per case: (key, side, value, limit)
+    critical: dict[int, list[tuple[str, str, float, float]]]  # case -> [(key, side, value, limit)], assess order
 
 
 def age_segments(sk: ScreenKnowledge, age: np.ndarray) -> np.ndarray:
@@ -75,11 +78,11 @@ class _Ctx:
 
     def v(self, key: str) -> np.ndarray:
         j = self.sk.value_index.get(key)
-        return self.nan if j is None else self.vals[:, j]
+        return self.nan if j is None else self.vals[j]
 
     def cat(self, key: str) -> np.ndarray:
         j = self.sk.category_index.get(key)
-        return np.full(self.n, -1, dtype=np.int16) if j is None else self.cats[:, j]
+        return np.full(self.n, -1, dtype=np.int16) if j is None else self.cats[j]
 
     def first(self, keys) -> np.ndarray:
         """The first of `keys` (a key or a list of alternatives) that is present, per case."""
@@ -346,11 +349,11 @@ def _rule_states(ctx: _Ctx, var: str, bp_cat: np.ndarray) -> np.ndarray:
         if method.kind == "measure":
             value = ctx.v(method.name)
             avail = ~np.isnan(value)
-            flag = ctx.flag(method.name, value)
+            flag = ctx.flag(method.interval or method.name, value)
         elif method.kind == "derived":
             value, valid = ctx.index.get(method.name, (ctx.nan, np.zeros(ctx.n, dtype=bool)))
             avail = valid & ~np.isnan(value)
-            flag = ctx.flag(method.name, value)
+            flag = ctx.flag(method.interval or method.name, value)
         else:
             value = bp_cat if method.kind == "bp" else ctx.cat(method.name)
             avail = value >= 0
@@ -358,14 +361,14 @@ def _rule_states(ctx: _Ctx, var: str, bp_cat: np.ndarray) -> np.ndarray:
         todo = open_ & avail
         for wkey, allowed in method.when:
             todo &= np.isin(ctx.cat(wkey), allowed)
+        if method.uses_flag:  # no reference interval for this age: the method is skipped, never read as normal
+            todo &= (flag != FLAG_NONE) if flag is not None else False
         for cond in method.conditions:
             m = todo.copy()
-            if cond.flag is not None:  # no interval for this age: the condition is skipped
-                m &= (flag != FLAG_NONE) if flag is not None else False
             if cond.is_codes is not None:
                 m &= np.isin(value, cond.is_codes)
             else:
-                if cond.flag is not None and flag is not None:
+                if cond.flag is not None:
                     m &= flag == cond.flag
                 for kind, limit in cond.bounds:
                     if kind == "below":
@@ -464,8 +467,8 @@ def _findings(ctx: _Ctx) -> np.ndarray:
 # --- critical limits (cautions.cautions) ------------------------------------------------------------
 
 
-def _critical(ctx: _Ctx) -> list[list[tuple[str, str, float, float]]]:
-    out: list[list[tuple[str, str, float, float]]] = [[] for _ in range(ctx.n)]
+def _critical(ctx: _Ctx) -> dict[int, list[tuple[str, str, float, float]]]:
+    out: dict[int, list[tuple[str, str, float, float]]] = {}
     for key in ctx.sk.critical_order:
         t = ctx.sk.criticals[key]
         v = ctx.v(key)
@@ -475,7 +478,7 @@ def _critical(ctx: _Ctx) -> list[list[tuple[str, str, float, float]]]:
         above = has & ~below & (v > high)
         for i in np.flatnonzero(below | above).tolist():
             side, limit = ("below", low[i]) if below[i] else ("above", high[i])
-            out[i].append((key, side, float(v[i]), float(limit)))
+            out.setdefault(i, []).append((key, side, float(v[i]), float(limit)))
     return out
 
 
@@ -495,49 +498,97 @@ def _neumaier_add(total: np.ndarray, comp: np.ndarray, x: np.ndarray) -> np.ndar
     return t
 
 
-def top_candidates(sk: ScreenKnowledge, states: np.ndarray, sex: np.ndarray, k: int = 3):
-    """(candidate column indices (n, k), probabilities (n, k), pattern inverse) of the top k per case.
+def pattern_keys(key: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(first row of each distinct row of `key`, inverse) for small non-negative int codes, by packing
+    each row into 64-bit words and sorting the words."""
+    n, m = key.shape
+    width = max(1, int(key.max()).bit_length()) if key.size else 1
+    per_word = max(1, 63 // width)
+    words = []
+    for start in range(0, m, per_word):
+        w = np.zeros(n, dtype=np.uint64)
+        for j in range(start, min(m, start + per_word)):
+            w = (w << np.uint64(width)) | key[:, j].astype(np.uint64)
+        words.append(w)
+    order = np.lexsort(words[::-1])
+    sorted_words = [w[order] for w in words]
+    new = np.ones(n, dtype=bool)
+    if n > 1:
+        same = np.ones(n - 1, dtype=bool)
+        for w in sorted_words:
+            same &= w[1:] == w[:-1]
+        new[1:] = ~same
+    group = np.cumsum(new) - 1
+    inverse = np.empty(n, dtype=np.intp)
+    inverse[order] = group
+    return order[new], inverse
 
-    Cases are grouped by (sex, states) pattern and each pattern is scored once."""
+
+_BLOCK = 1024  # patterns per block: a block of scores stays in cache while the evidence is added
+
+
+def _probabilities(sk: ScreenKnowledge, psex: np.ndarray, pstates: np.ndarray) -> np.ndarray:
+    """Posteriors (patterns x candidates, columns in id order) with the scorer's own float arithmetic:
+    the evidence of each variable added in the scorer's order (a silent candidate adds 0.0, which
+    changes no float), the interpreter's float summation, the soft-max in id order."""
+    col = {v: j for j, v in enumerate(sk.variables)}
+    u, c = pstates.shape[0], len(sk.candidates)
+    terms = [(pstates[:, col[v]].astype(np.intp), sk.llr[v]) for v in sk.score_order]
+    terms = [(idx, m) for idx, m in terms if (idx >= 0).any() and (m != 0).any()]
+    out = np.empty((u, c))
+    buf = np.empty((_BLOCK, c))
+    for a in range(0, u, _BLOCK):
+        b = min(u, a + _BLOCK)
+        total = np.zeros((b - a, c))
+        comp = np.zeros((b - a, c)) if _NEUMAIER else None
+        x = buf[: b - a]
+        for idx, m in terms:
+            np.take(m, idx[a:b], axis=0, out=x)  # -1 picks the zero row: unobserved
+            if _NEUMAIER:
+                total = _neumaier_add(total, comp, x)
+            else:
+                total += x
+        if _NEUMAIER:
+            total = np.where((comp != 0) & np.isfinite(comp), total + comp, total)
+        score = out[a:b]
+        np.multiply(total, sk.evidence_weight, out=score)
+        score += sk.log_prior[psex[a:b]]
+        score -= score.max(axis=1, keepdims=True)
+        np.exp(score, out=score)
+        if _NEUMAIER:
+            z, zc = np.zeros(b - a), np.zeros(b - a)
+            for j in range(c):
+                z = _neumaier_add(z, zc, score[:, j])
+            z = np.where((zc != 0) & np.isfinite(zc), z + zc, z)
+        else:
+            z = np.cumsum(score, axis=1)[:, -1]  # left to right, as sum() adds
+        score /= z[:, None]
+    return out
+
+
+def _top(prob: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Columns and values of the k largest per row, the first column winning a tie (the scorer sorts
+    by probability, then id, and the columns are in id order)."""
+    u, c = prob.shape
+    rows = np.arange(u)
+    idx = np.full((u, k), c, dtype=np.intp)  # c: no candidate
+    val = np.full((u, k), np.nan)
+    for r in range(min(k, c)):
+        j = np.argmax(prob, axis=1)
+        idx[:, r], val[:, r] = j, prob[rows, j]
+        prob[rows, j] = -np.inf
+    return idx, val
+
+
+def top_candidates(sk: ScreenKnowledge, states: np.ndarray, sex: np.ndarray, k: int = 3):
+    """(candidate columns (u, k), probabilities (u, k), inverse (n,), pattern states (u, n_variables)).
+
+    Cases are grouped by (sex, findings) pattern and each pattern is scored once."""
     n = states.shape[0]
     if n == 0:
         return np.zeros((0, k), dtype=np.intp), np.zeros((0, k)), np.zeros(0, dtype=np.intp), states
-    key = np.concatenate([sex.reshape(-1, 1).astype(np.int8), states], axis=1)
-    patterns, inverse = np.unique(key, axis=0, return_inverse=True)
-    inverse = inverse.reshape(-1)
-    psex, pstates = patterns[:, 0].astype(np.intp), patterns[:, 1:]
-    col = {v: j for j, v in enumerate(sk.variables)}
-    u, c = patterns.shape[0], len(sk.candidates)
-    total = np.zeros((u, c))
-    comp = np.zeros((u, c)) if _NEUMAIER else None
-    for var in sk.score_order:
-        x = sk.llr[var][pstates[:, col[var]].astype(np.intp)]  # -1 picks the zero row
-        if _NEUMAIER:
-            total = _neumaier_add(total, comp, x)
-        else:
-            total = total + x
-    if _NEUMAIER:
-        total = np.where((comp != 0) & np.isfinite(comp), total + comp, total)
-    score = sk.log_prior[psex] + sk.evidence_weight * total
-    top = score.max(axis=1, keepdims=True)
-    e = np.exp(score - top)
-    z = np.zeros(u)
-    zc = np.zeros(u) if _NEUMAIER else None
-    for j in range(c):
-        if _NEUMAIER:
-            z = _neumaier_add(z, zc, e[:, j])
-        else:
-            z = z + e[:, j]
-    if _NEUMAIER:
-        z = np.where((zc != 0) & np.isfinite(zc), z + zc, z)
-    prob = e / z[:, None]
-    idx = np.zeros((u, k), dtype=np.intp)
-    best = np.zeros((u, k))
-    work = prob.copy()
-    rows = np.arange(u)
-    for r in range(min(k, c)):
-        j = np.argmax(work, axis=1)  # the first maximum: ties go to the smaller id, as the scorer sorts
-        idx[:, r] = j
-        best[:, r] = prob[rows, j]
-        work[rows, j] = -np.inf
-    return idx, best, inverse, pstates
+    key = np.concatenate([sex.reshape(-1, 1).astype(np.int16), states.astype(np.int16) + 1], axis=1)
+    first, inverse = pattern_keys(key)
+    psex, pstates = sex[first].astype(np.intp), states[first]
+    idx, val = _top(_probabilities(sk, psex, pstates), k)
+    return idx, val, inverse, pstates

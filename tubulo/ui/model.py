@@ -25,12 +25,14 @@ __all__ = [
     "FieldSpec",
     "HpoHit",
     "PathStep",
+    "Prefetch",
     "candidate_rows",
     "compose_quantity",
     "drug_names",
     "evaluate",
     "exposure_names",
     "field_catalogue",
+    "unknown_fields",
     "fields_by_group",
     "fmt_probability",
     "get_value",
@@ -51,6 +53,7 @@ EXPLAIN_TOP = 25  # candidates whose evidence is worked out on each pass (the di
 # groupings only: hormones are stored under `serum`, other tests under `tests` (the case contract).
 GROUPS = ("Patient", "Onset and family", "Features", "Medications and exposures", "Vitals", "Serum",
           "Blood gas", "Urine", "Hormones", "Other tests")
+# common practice, no source (a screen grouping; calcidiol is the vitamin D store, listed with them)
 _HORMONE_KEYS = ("renin_activity", "renin_concentration", "aldosterone", "pth", "calcidiol", "calcitriol",
                  "fgf23", "cortisol", "tsh")
 _SECTION_GROUP = {"vitals": "Vitals", "serum": "Serum", "blood_gas": "Blood gas", "urine": "Urine",
@@ -139,6 +142,27 @@ def field_catalogue() -> tuple[FieldSpec, ...]:
             out.append(choice(key))
     order = {g: i for i, g in enumerate(GROUPS)}
     return tuple(sorted(out, key=lambda f: order[f.group]))  # stable: file order inside a group
+
+
+def unknown_fields(raw: Mapping[str, Any]) -> tuple[FieldSpec, ...]:
+    """Keys of the raw mapping that no form field reads (typos, keys of another version), as editable
+    text fields, so that the user can see them next to their problem and remove them."""
+    known_top = set(TOP_KEYS)
+    read: dict[str, set[str]] = {}
+    for f in field_catalogue():
+        if f.section:
+            read.setdefault(f.section, set()).update((f.key, *f.aliases))
+    out: list[FieldSpec] = []
+    for key, value in raw.items():
+        if not isinstance(key, str):
+            continue
+        if key not in known_top:
+            out.append(FieldSpec(f"extra:{key}", "", key, key, "text", "Not recognised"))
+        elif key in read and isinstance(value, Mapping):
+            for sub in value:
+                if isinstance(sub, str) and sub not in read[key]:
+                    out.append(FieldSpec(f"extra:{key}.{sub}", key, sub, f"{key}.{sub}", "text", "Not recognised"))
+    return tuple(out)
 
 
 def fields_by_group() -> dict[str, tuple[FieldSpec, ...]]:
@@ -287,7 +311,7 @@ _LIST_PATH = re.compile(r"^(features|absent_features|medications|exposures)\[(\d
 def problems_by_field(problems: Sequence[Problem], raw: Mapping[str, Any]) -> tuple[dict[str, list[Problem]], list[Problem]]:
     """Problems keyed by form field id (or "features[2]" for a list item), and those tied to no field."""
     where: dict[str, str] = {}
-    for f in field_catalogue():
+    for f in (*unknown_fields(raw), *field_catalogue()):
         where[f"{f.section}.{raw_key(raw, f)}" if f.section else f.key] = f.id
     by: dict[str, list[Problem]] = {}
     general: list[Problem] = []
@@ -432,10 +456,10 @@ def evaluate(raw: Mapping[str, Any], tables: Mapping[str, Any], source: str = ""
 
 
 def fmt_probability(p: float) -> str:
-    """"99.3 %", "<0.1 %" for a small non-zero value, "0 %" for none."""
+    """"99.3 %", "<0.1 %" for a small value, "≈0 %" for one that rounds to nothing."""
     pct = p * 100
     if pct <= 0:
-        return "0 %"
+        return "≈0 %"
     if pct < 0.1:
         return "<0.1 %"
     return f"{pct:.1f} %"
@@ -501,3 +525,41 @@ def path_steps(candidate: Mapping[str, Any], item: Mapping[str, Any], tables: Ma
                               s.get("edge", ""), sign, direction, s.get("source", ""), s.get("note") or "",
                               _sites(node, nodes, adjacency)))
     return tuple(steps)
+
+
+class Prefetch:
+    """Load the knowledge and evaluate the opening workup in a thread while the screen is being built.
+
+    `result()` waits and returns (tables, graph view, evaluation or None, error text or None)."""
+
+    def __init__(self, raw: Mapping[str, Any] | None, source: str = ""):
+        import threading
+
+        self._raw = raw
+        self._source = source
+        self._out: tuple[Any, Any, Evaluation | None, str | None] | None = None
+        self._thread = threading.Thread(target=self._run, name="tubulo-prefetch", daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        from ..errors import TubuloError
+        from ..kb.tables import load_graph_view, load_tables
+
+        try:
+            tables = load_tables()
+            graph = load_graph_view()
+        except TubuloError as exc:
+            self._out = (None, None, None, str(exc))
+            return
+        ev = None
+        if self._raw is not None:
+            try:
+                ev = evaluate(self._raw, tables, self._source, generation=1)
+            except TubuloError:
+                ev = None  # the application evaluates again and shows the problem
+        self._out = (tables, graph, ev, None)
+
+    def result(self) -> tuple[Any, Any, Evaluation | None, str | None]:
+        self._thread.join()
+        assert self._out is not None
+        return self._out

@@ -11,7 +11,7 @@ from textual.reactive import reactive
 from textual.widget import Widget
 from textual.widgets import Static
 
-__all__ = ["CautionStrip", "Picker", "StatusLine", "bar", "weight_bar"]
+__all__ = ["CautionStrip", "Picker", "StatusLine", "bar", "put", "weight_bar"]
 
 _EIGHTHS = " ▏▎▍▌▋▊▉"
 
@@ -27,15 +27,25 @@ def bar(fraction: float, width: int = 10) -> str:
     return text.ljust(width)
 
 
+def put(widget: Static, content: Any, layout: bool = True) -> None:
+    """Update a Static only when its content changed (a re-layout per keystroke is what costs)."""
+    key = (content.plain, tuple(content.spans), str(content.style)) if isinstance(content, Text) else content
+    if getattr(widget, "_tubulo_last", None) == key:
+        return
+    widget._tubulo_last = key  # type: ignore[attr-defined]
+    widget.update(content, layout=layout)
+
+
 def weight_bar(log_lr: float, cap: float = 3.0, width: int = 6) -> str:
     """The size of one piece of evidence (|log LR| against the cap) as a short bar."""
     return bar(min(abs(log_lr), cap) / cap, width)
 
 
 def first_sentence(text: str) -> str:
-    for stop in (". ", ": "):
+    """The head of a caution text: up to its first colon or full stop."""
+    for stop in (": ", ". "):
         if stop in text:
-            return text.split(stop, 1)[0] + ("." if stop == ". " else "")
+            return text.split(stop, 1)[0] + "."
     return text
 
 
@@ -69,19 +79,20 @@ class CautionStrip(Static):
             t.append("\n")
         if warn:
             t.append(f"▲ {len(warn)} warning{'s' if len(warn) > 1 else ''}: ", style="bold")
-            t.append(str(warn[0].get("message", "")))
-            if len(warn) > 1:
-                t.append(f" (+{len(warn) - 1} more)")
+            first = str(warn[0].get("message", ""))
+            room = max(20, (self.size.width or 80) - 22)
+            t.append(first if len(first) <= room else first[: room - 1].rstrip() + "…")
+            t.append("  F8" if len(first) > room or len(warn) > 1 else "", style="dim")
             t.append("\n")
         line = first_sentence(str(standing.get("message"))) if standing else "Decision support, not a diagnosis."
         t.append("ⓘ ", style="bold")
         t.append(line)
-        t.append("  F8: all cautions", style="dim")
+        t.append("  F8 lists every caution with its source", style="dim")
         if stale:
             t.append("\n✗ The workup has problems: the results shown are from its last valid version.", style="bold")
         self.set_class(bool(crit), "-critical")
         self.set_class(bool(warn) and not crit, "-warning")
-        self.update(t)
+        put(self, t)
 
 
 class StatusLine(Static):
@@ -92,20 +103,21 @@ class StatusLine(Static):
     def __init__(self, **kwargs: Any):
         super().__init__("", markup=False, **kwargs)
 
-    def show(self, case_id: str, path: str | None, dirty: bool, problems: int, busy: bool, seconds: float | None) -> None:
+    def show(self, case_id: str, path: str | None, dirty: bool, problems: int, busy: bool, seconds: float | None,
+             show_timing: bool = True) -> None:
         t = Text()
         t.append(case_id or "(no case id)", style="bold")
         t.append(f"  {path}" if path else "  (not saved yet)")
-        t.append("  ● unsaved changes" if dirty else "  saved" if path else "", style="bold" if dirty else "")
+        t.append("  ● unsaved" if dirty else "  saved" if path else "", style="bold" if dirty else "")
         if problems:
             t.append(f"  ✗ {problems} problem{'s' if problems != 1 else ''} (see Workup)", style="bold")
         else:
             t.append("  ✓ valid")
         if busy:
             t.append("  ranking…")
-        elif seconds is not None:
-            t.append(f"  ranked in {seconds * 1000:.0f} ms", style="dim")
-        self.update(t)
+        elif seconds is not None and show_timing:
+            t.append(f"  {seconds * 1000:.0f} ms", style="dim")
+        put(self, t, layout=False)
 
 
 class Picker(Widget, can_focus=True):

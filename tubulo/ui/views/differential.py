@@ -13,7 +13,7 @@ from textual.message import Message
 from textual.widgets import DataTable, Static
 
 from ..model import candidate_rows, fmt_probability
-from ..widgets import bar
+from ..widgets import bar, put
 
 __all__ = ["DifferentialView", "OpenCandidate"]
 
@@ -22,6 +22,11 @@ class OpenCandidate(Message):
     def __init__(self, cid: str):
         super().__init__()
         self.cid = cid
+
+
+def short_segment(seg: str) -> str:
+    """A segment id as a column shows it: "dct1" -> "DCT1", "proximal_tubule" -> "proximal tubule"."""
+    return seg.upper() if len(seg) <= 4 else seg.replace("_", " ")
 
 
 def segment_labels(tables: Mapping[str, Any], segments: list[str]) -> str:
@@ -36,6 +41,8 @@ class DifferentialView(Vertical):
         super().__init__(**kwargs)
         self.rows: list[Mapping[str, Any]] = []
         self.document: Mapping[str, Any] | None = None
+        self._stale = False
+        self._columns_for = 0
 
     def compose(self) -> ComposeResult:
         yield Static(Text("Working out the differential…"), markup=False, id="diff-head")
@@ -44,12 +51,32 @@ class DifferentialView(Vertical):
         yield Static("", markup=False, id="diff-detail")
 
     def on_mount(self) -> None:
+        self._columns_for = 0
+        self._setup_columns()
+
+    def _setup_columns(self) -> None:
+        """Columns sized to the terminal: the candidate's name takes what is left."""
+        width = self.app.size.width or 80
+        if width == self._columns_for:
+            return
+        self._columns_for = width
         t = self.query_one(DataTable)
+        t.clear(columns=True)
+        genes = 10 if width < 100 else 16
+        segments = 0 if width < 110 else 24
+        columns = 6 if segments else 5
+        name = max(28, width - (3 + 16 + 9 + genes + segments) - 2 * columns - 4)
         t.add_column("#", key="rank", width=3)
-        t.add_column("probability", key="p", width=17)
-        t.add_column("candidate", key="name", width=34)
+        t.add_column("probability", key="p", width=16)
+        t.add_column("candidate", key="name", width=name)
         t.add_column("kind", key="kind", width=9)
-        t.add_column("genes", key="genes", width=14)
+        t.add_column("genes", key="genes", width=genes)
+        if segments:
+            t.add_column("segments", key="segments", width=segments)
+
+    def on_resize(self) -> None:
+        if self.document is not None and self.app.size.width != self._columns_for:
+            self.show(self.document, getattr(self.app, "tables", None) or {}, self._stale)
 
     def show(self, document: Mapping[str, Any] | None, tables: Mapping[str, Any], stale: bool) -> None:
         head = self.query_one("#diff-head", Static)
@@ -62,7 +89,9 @@ class DifferentialView(Vertical):
             if 0 <= cur < len(self.rows):
                 keep = self.rows[cur]["id"]
         self.document = document
+        self._stale = stale
         self.rows = candidate_rows(document)
+        self._setup_columns()
         t = self.query_one(DataTable)
         t.clear()
         ranks = {c["id"]: i for i, c in enumerate(document.get("candidates") or [], 1)}
@@ -71,8 +100,10 @@ class DifferentialView(Vertical):
             cell = Text(f"{fmt_probability(p):>7} ")
             cell.append(bar(p, 9))
             rank = Text(str(ranks[c["id"]]))
-            t.add_row(rank, cell, Text(c["name"]), Text(c["kind"]), Text(", ".join(c.get("genes") or [])),
-                      key=c["id"])
+            cells = [rank, cell, Text(c["name"]), Text(c["kind"]), Text(", ".join(c.get("genes") or []))]
+            if len(t.columns) > 5:
+                cells.append(Text(", ".join(short_segment(x) for x in c.get("segments") or [])))
+            t.add_row(*cells, key=c["id"])
         n = len(document.get("candidates") or [])
         lead = document["candidates"][0] if document.get("candidates") else None
         ht = Text()
@@ -82,7 +113,7 @@ class DifferentialView(Vertical):
             ht.append("Leading: ", style="bold")
             ht.append(f"{lead['name']} {fmt_probability(lead['probability'])}")
         ht.append(f"  ·  {n} candidates weighed; probabilities add up to 100 %.", style="dim")
-        head.update(ht)
+        put(head, ht)
         if keep is not None:
             ids = [r["id"] for r in self.rows]
             if keep in ids:
@@ -107,7 +138,7 @@ class DifferentialView(Vertical):
         if c.get("xrefs"):
             txt.append(f"  ·  {' '.join(c['xrefs'][:4])}", style="dim")
         txt.append("\nEnter: evidence for and against  ·  F5: its links  ·  F6: the nephron map", style="dim")
-        d.update(txt)
+        put(d, txt)
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         event.stop()

@@ -51,7 +51,7 @@ class EvidenceView(Vertical):
         yield Static(Text("Choose a candidate in the Differential (F3) and press Enter."), markup=False, id="ev-head")
         with Horizontal(id="ev-body"):
             with Vertical(id="ev-left"):
-                yield Static(Text("EVIDENCE  (log LR: + raises, − lowers the probability)", style="bold"),
+                yield Static(Text("EVIDENCE (log LR; + raises, − lowers) · Enter: its path", style="bold"),
                              classes="pane-title")
                 yield OptionList(id="ev-items")
             with Vertical(id="ev-right"):
@@ -93,18 +93,17 @@ class EvidenceView(Vertical):
         cands = self.document["candidates"]
         rank = [x["id"] for x in cands].index(c["id"]) + 1
         h = Text()
-        h.append(f"#{rank} of {len(cands)}  ", style="dim")
+        h.append(f"#{rank}/{len(cands)} ", style="dim")
         h.append(c["name"], style="bold")
-        h.append(f"  {fmt_probability(c['probability'])}  [{c['kind']}]")
+        h.append(f" {fmt_probability(c['probability'])} {c['kind']}")
         if c.get("genes"):
-            h.append(f"  genes {', '.join(c['genes'])}")
+            h.append(f" · {', '.join(c['genes'])}")
         nodes = self.tables.get("nodes") or {}
         if c.get("segments"):
-            h.append("  ·  " + ", ".join(str((nodes.get(s) or {}).get("label", s)) for s in c["segments"]))
-        for note in c.get("prior_notes") or []:
-            h.append(f"\nprior: {note}", style="dim")
-        h.append("\n[ ] previous/next candidate · Enter on a finding: its path · Enter on a step: open it in Links",
-                 style="dim")
+            h.append(" · " + ", ".join(str((nodes.get(s) or {}).get("label", s)) for s in c["segments"]))
+        notes = list(c.get("prior_notes") or [])
+        if notes:
+            h.append(f"\nprior: {'; '.join(notes)}", style="dim")
         head.update(h)
         if "support" not in c:
             items.add_option(Option(Text(f"Evidence is worked out for the {len(candidate_rows(self.document)) - 1} "

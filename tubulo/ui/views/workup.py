@@ -1,6 +1,8 @@
-"""The Workup view: the entry form.  Every change posts an edit to the application, which revalidates
-and re-ranks in a worker; the problems that come back are shown under the field they belong to,
-word for word as the command line prints them."""
+"""The Workup view: the entry sheet.  One line per field (value, unit, reference flag, first problem);
+the editor under the sheet takes the highlighted field's value and unit.  Every change posts an edit
+to the application, which revalidates and re-ranks in a worker; the problems that come back are
+shown on the field's line and in full under the editor, word for word as the command line prints
+them.  Features, medications and exposures open a list editor."""
 
 from __future__ import annotations
 
@@ -9,24 +11,21 @@ from typing import Any, Mapping, Sequence
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
 from textual.message import Message
-from textual.suggester import SuggestFromList
-from textual.widgets import Button, Input, OptionList, Static
-from textual.widgets.option_list import Option
+from textual.widgets import DataTable, Input, Static
 
 from ...errors import Problem
-from ..model import (GROUPS, FieldSpec, compose_quantity, fields_by_group, get_value, list_items,
-                     resolve_feature, search_hpo, split_quantity)
-from ..widgets import Picker
+from ..model import (GROUPS, FieldSpec, compose_quantity, fields_by_group, get_value, list_items, resolve_feature,
+                     split_quantity, unknown_fields)
+from ..widgets import Picker, put
 
-__all__ = ["FieldEdited", "FieldRow", "ListsEdited", "WorkupView", "dom_id"]
+__all__ = ["FieldEdited", "ListsEdited", "WorkupView", "field_shown", "stored_value", "problem_text"]
 
 _BP_TEXT = re.compile(r"^\s*(\d+(?:[.,]\d+)?\s*/\s*\d+(?:[.,]\d+)?)\s*(.*?)\s*$")
-
-
-def dom_id(text: str) -> str:
-    return re.sub(r"[^A-Za-z0-9_-]", "-", text)
+LIST_ROWS = {"Features": ("features",), "Medications and exposures": ("medications", "exposures")}
+_LIST_LABELS = {"features": "Findings (HPO)", "medications": "Medications", "exposures": "Exposures"}
 
 
 class FieldEdited(Message):
@@ -46,7 +45,7 @@ class ListsEdited(Message):
         self.lists = dict(lists)
 
 
-def _msg_text(problems: Sequence[Problem]) -> Text:
+def problem_text(problems: Sequence[Problem]) -> Text:
     t = Text()
     for i, p in enumerate(problems):
         if i:
@@ -56,367 +55,406 @@ def _msg_text(problems: Sequence[Problem]) -> Text:
     return t
 
 
-class FieldRow(Vertical):
-    """One field: label, value box, unit or choice picker, reference flag; its messages below."""
+def field_shown(spec: FieldSpec, raw: Mapping[str, Any]) -> tuple[str, str, bool]:
+    """(value text, unit or choice, unit assumed) of a field as the editor shows it."""
+    value = get_value(raw, spec)
+    if spec.kind == "quantity":
+        text, unit = split_quantity(value)
+        return text, unit or spec.default_unit, bool(text) and unit is None and text.lower() not in spec.qualitative
+    if spec.kind == "bp":
+        m = _BP_TEXT.match(str(value)) if value is not None else None
+        if m:
+            return m.group(1), m.group(2) or spec.default_unit, not m.group(2)
+        return ("" if value is None else str(value)), spec.default_unit, False
+    if spec.kind == "bool":
+        if isinstance(value, bool):
+            return ("yes" if value else "no"), "", False
+        word = {"yes": "yes", "true": "yes", "no": "no", "false": "no"}.get(str(value).strip().lower(), str(value))
+        return ("" if value is None else word), "", False
+    if spec.kind == "relatives":
+        items = value if isinstance(value, list) else ([] if value is None else [value])
+        return ", ".join(str(v) for v in items), "", False
+    return ("" if value is None else str(value)), "", False
 
-    def __init__(self, spec: FieldSpec, raw: Mapping[str, Any]):
-        super().__init__(id="f-" + dom_id(spec.id), classes="field-row")
-        self.spec = spec
-        value = get_value(raw, spec)
-        self._shown: tuple[str, str] = ("", "")
-        if spec.kind == "quantity":
-            text, unit = split_quantity(value)
-            self._shown = (text, unit or spec.default_unit)
-        elif spec.kind == "bp":
-            m = _BP_TEXT.match(str(value)) if value is not None else None
-            self._shown = ((m.group(1), m.group(2) or spec.default_unit) if m
-                           else ("" if value is None else str(value), spec.default_unit))
-        elif spec.kind == "bool":
-            word = {True: "yes", False: "no"}.get(value) if isinstance(value, bool) else (
-                {"yes": "yes", "true": "yes", "no": "no", "false": "no"}.get(str(value).strip().lower(), str(value))
-                if value is not None else "")
-            self._shown = (word, "")
-        elif spec.kind == "relatives":
-            items = value if isinstance(value, list) else ([] if value is None else [value])
-            self._shown = (", ".join(str(v) for v in items), "")
-        else:
-            self._shown = ("" if value is None else str(value), "")
 
-    def compose(self) -> ComposeResult:
-        s = self.spec
-        with Horizontal(classes="line"):
-            yield Static(s.label, markup=False, classes="f-label")
-            if s.kind in ("quantity", "bp"):
-                placeholder = "e.g. 118/76" if s.kind == "bp" else ""
-                yield Input(self._shown[0], placeholder=placeholder, compact=True, classes="f-value",
-                            id=f"in-{dom_id(s.id)}", select_on_focus=False)
-                units = list(dict.fromkeys(s.units))
-                yield Picker([(u or "(none)", u) for u in units], self._shown[1], title=f"Unit of {s.label}",
-                             classes="f-unit", id=f"unit-{dom_id(s.id)}")
-            elif s.kind in ("choice", "bool"):
-                choices = ("yes", "no") if s.kind == "bool" else s.choices
-                yield Picker([("—", "")] + [(c, c) for c in choices], self._shown[0], title=s.label,
-                             classes="f-choice", id=f"in-{dom_id(s.id)}")
-            else:
-                placeholder = "e.g. brother, maternal uncle" if s.kind == "relatives" else ""
-                yield Input(self._shown[0], placeholder=placeholder, compact=True, classes="f-text",
-                            id=f"in-{dom_id(s.id)}", select_on_focus=False)
-            yield Static("", markup=False, classes="f-flag")
-        yield Static("", markup=False, classes="f-msg")
-
-    def _current(self) -> tuple[str, str]:
-        s = self.spec
-        if s.kind in ("quantity", "bp"):
-            return self.query_one(Input).value, self.query_one(Picker).value
-        if s.kind in ("choice", "bool"):
-            return self.query_one(Picker).value, ""
-        return self.query_one(Input).value, ""
-
-    def _stored(self, text: str, unit: str) -> Any:
-        s = self.spec
-        if s.kind == "quantity":
-            return compose_quantity(s, text, unit)
-        if s.kind == "bp":
-            text = text.strip()
-            if not text:
-                return None
-            return text if re.search(r"[A-Za-z]", text) else f"{text} {unit}".strip()
-        if s.kind == "bool":
-            return {"yes": True, "no": False}.get(text) if text else None
-        if s.kind == "relatives":
-            items = [w.strip() for w in text.split(",") if w.strip()]
-            return items or None
+def stored_value(spec: FieldSpec, text: str, unit: str) -> Any:
+    """What the raw mapping stores for a value typed as `text` with `unit` (None removes the field)."""
+    if spec.kind == "quantity":
+        return compose_quantity(spec, text, unit)
+    if spec.kind == "bp":
+        text = text.strip()
+        if not text:
+            return None
+        return text if re.search(r"[A-Za-z]", text) else f"{text} {unit}".strip()
+    if spec.kind == "bool":
+        return {"yes": True, "no": False}.get(text.strip().lower()) if text.strip() else None
+    if spec.kind == "choice":
         return text.strip() or None
-
-    def _changed(self) -> None:
-        now = self._current()
-        if now == self._shown:
-            return
-        self._shown = now
-        self.post_message(FieldEdited(self.spec, self._stored(*now)))
-
-    def on_input_changed(self, event: Input.Changed) -> None:
-        event.stop()
-        self._changed()
-
-    def on_input_submitted(self, event: Input.Submitted) -> None:
-        event.stop()
-        self.screen.focus_next()
-
-    def on_picker_changed(self, event: Picker.Changed) -> None:
-        event.stop()
-        self._changed()
-
-    def show_feedback(self, problems: Sequence[Problem], flag: str | None) -> None:
-        msg = self.query_one(".f-msg", Static)
-        msg.update(_msg_text(problems))
-        msg.set_class(bool(problems), "-shown")
-        self.set_class(any(p.level == "error" for p in problems), "-error")
-        word = {"low": "▼ low", "high": "▲ high", "normal": "· normal", "critical": "!!! CRIT"}.get(flag or "", "")
-        self.query_one(".f-flag", Static).update(word)
-        self.set_class(flag == "critical", "-critical")
+    if spec.kind == "relatives":
+        return [w.strip() for w in text.split(",") if w.strip()] or None
+    return text.strip() or None
 
 
-class FeatureItem(Horizontal):
-    """One listed finding: present or absent, its HPO id and label, buttons to flip or remove it."""
-
-    def __init__(self, section: str, index: int, text: str, problems: Sequence[Problem]):
-        super().__init__(classes="list-item", id=f"{section}-{index}")
-        self.section = section
-        self.index = index
-        self.text = text
-        self.problems = list(problems)
-
-    def compose(self) -> ComposeResult:
-        hit = resolve_feature(self.text)
-        t = Text()
-        t.append("present " if self.section == "features" else "absent  ", style="bold")
-        if hit:
-            t.append(f"{hit[0]} {hit[1]}")
-            if self.text.strip() not in (hit[0], f"{hit[0]} {hit[1]}"):
-                t.append(f"  (written '{self.text}')", style="dim")
-        else:
-            t.append(self.text)
-        if self.problems:
-            t.append("\n")
-            t.append(_msg_text(self.problems))
-        yield Static(t, markup=False, classes="item-text")
-        flip = "mark absent" if self.section == "features" else "mark present"
-        yield Button(flip, compact=True, classes="flip")
-        yield Button("remove", compact=True, classes="remove")
-        self.set_class(any(p.level == "error" for p in self.problems), "-error")
-
-
-class DrugItem(Horizontal):
-    """One listed medication or exposure with what the knowledge makes of it."""
-
-    def __init__(self, section: str, index: int, text: str, meaning: str, problems: Sequence[Problem]):
-        super().__init__(classes="list-item", id=f"{section}-{index}")
-        self.section = section
-        self.index = index
-        self.text = text
-        self.meaning = meaning
-        self.problems = list(problems)
-
-    def compose(self) -> ComposeResult:
-        t = Text(self.text, style="bold")
-        t.append(f"  {self.meaning}")
-        if self.problems:
-            t.append("\n")
-            t.append(_msg_text(self.problems))
-        yield Static(t, markup=False, classes="item-text")
-        yield Button("remove", compact=True, classes="remove")
-        self.set_class(any(p.level == "error" for p in self.problems), "-error")
+def list_summary(raw: Mapping[str, Any], name: str) -> str:
+    if name == "features":
+        present = [resolve_feature(x) for x in list_items(raw, "features")]
+        absent = [resolve_feature(x) for x in list_items(raw, "absent_features")]
+        parts = [h[1] if h else "?" for h in present] + [f"no {h[1]}" if h else "no ?" for h in absent]
+        return "; ".join(parts) if parts else "none listed"
+    items = list_items(raw, name)
+    return ", ".join(items) if items else "none listed"
 
 
 class WorkupView(Vertical):
-    """Sections of the workup; the section list on the left jumps to a section."""
+    """The entry sheet and its editor."""
+
+    BINDINGS = [
+        Binding("enter", "edit", "edit the highlighted field (lists open their editor)", show=False),
+        Binding("delete", "clear", "clear the highlighted field", show=False),
+    ]
 
     def __init__(self, raw: Mapping[str, Any], **kwargs: Any):
         super().__init__(**kwargs)
         self.raw = raw
-        self._problems: dict[str, list[Problem]] = {}
+        self.fields: dict[str, FieldSpec] = {}
+        self.order: list[str] = []  # row keys in sheet order
+        self.current: str | None = None
+        self._shown: tuple[str, str] = ("", "")
+        self.by_field: dict[str, list[Problem]] = {}
+        self.flags: dict[str, str | None] = {}
+        self._cells: dict[tuple[str, str], Text] = {}
+
+    def _raw(self) -> Mapping[str, Any]:
+        """The application's current workup (this view's copy until it is mounted in one)."""
+        raw = getattr(self.app, "raw", None)
+        return raw if isinstance(raw, Mapping) else self.raw
+
+    def _cell(self, row: str, column: str, value: Text) -> None:
+        """Update one cell of the sheet, only when its text changed (keeps an edit's re-draw small)."""
+        if self._cells.get((row, column)) == value:
+            return
+        self._cells[(row, column)] = value
+        self.query_one("#sheet", DataTable).update_cell(row, column, value)
 
     def compose(self) -> ComposeResult:
-        with Horizontal():
-            yield OptionList(*[Option(Text(g), id=dom_id(g)) for g in GROUPS], id="sections")
-            with VerticalScroll(id="form"):
-                yield Static("", markup=False, id="general-problems")
-                groups = fields_by_group()
-                for g in GROUPS:
-                    yield Static(Text(g.upper(), style="bold"), markup=False, classes="section-head",
-                                 id=f"head-{dom_id(g)}")
-                    if g == "Features":
-                        yield Static(Text("Type a finding (label, synonym or HP id); ↓ to the list, Enter adds it. "
-                                          "◆ marks findings the knowledge weighs.", style="dim"), classes="hint")
-                        yield Input(placeholder="find a finding, e.g. nephrocalcinosis", compact=True,
-                                    id="feature-search")
-                        yield OptionList(id="feature-hits")
-                        yield Vertical(id="feature-items", classes="items")
-                    elif g == "Medications and exposures":
-                        yield Static(Text("Type a medicine (INN; → completes) or an exposure, Enter adds it.",
-                                          style="dim"), classes="hint")
-                        yield Input(placeholder="medicine, e.g. furosemide", compact=True, id="med-input")
-                        yield Vertical(id="med-items", classes="items")
-                        yield Input(placeholder="exposure, e.g. licorice", compact=True, id="exp-input")
-                        yield Vertical(id="exp-items", classes="items")
-                    for f in groups[g]:
-                        yield FieldRow(f, self.raw)
-                yield Static(Text("COMPUTED FROM THESE VALUES", style="bold"), classes="section-head", id="head-derived")
-                yield Static("", markup=False, id="derived")
+        yield Static("", markup=False, id="general-problems")
+        yield DataTable(id="sheet", cursor_type="row", zebra_stripes=False)
+        with Vertical(id="editor"):
+            yield Static("", markup=False, id="editor-label")
+            with Horizontal(id="editor-line"):
+                yield Input(compact=True, id="editor-value", select_on_focus=False)
+                yield Picker([], "", title="Unit", id="editor-unit")
+            yield Static("", markup=False, id="editor-msg")
 
     def on_mount(self) -> None:
-        self.query_one("#feature-hits", OptionList).display = False
-        self._set_suggesters()
-        self.refresh_lists(self.raw, {})
-
-    def _set_suggesters(self) -> None:
-        tables = getattr(self.app, "tables", None)
-        if not tables:
-            return
-        from ..model import drug_names, exposure_names
-
-        self.query_one("#med-input", Input).suggester = SuggestFromList(drug_names(tables), case_sensitive=False)
-        self.query_one("#exp-input", Input).suggester = SuggestFromList(exposure_names(tables), case_sensitive=False)
+        t = self.query_one("#sheet", DataTable)
+        t.add_column("field", key="field", width=26)
+        t.add_column("value", key="value", width=16)
+        t.add_column("unit", key="unit", width=10)
+        t.add_column("flag", key="flag", width=9)
+        t.add_column("problem", key="problem", width=60)
+        groups = fields_by_group()
+        extra = unknown_fields(self.raw)
+        if extra:
+            t.add_row(Text("NOT RECOGNISED (Delete clears a line)", style="bold"), "", "", "", "",
+                      key="head:Not recognised")
+            self.order.append("head:Not recognised")
+            for f in extra:
+                self.fields[f.id] = f
+                text, _, _ = field_shown(f, self.raw)
+                t.add_row(Text(f"  {f.label}"), Text(text), Text(""), Text(""), Text(""), key=f.id)
+                self._cells.update({(f.id, "value"): Text(text), (f.id, "unit"): Text(""),
+                                    (f.id, "flag"): Text(""), (f.id, "problem"): Text("")})
+                self.order.append(f.id)
+        for g in GROUPS:
+            key = f"head:{g}"
+            t.add_row(Text(g.upper(), style="bold"), "", "", "", "", key=key)
+            self.order.append(key)
+            for name in LIST_ROWS.get(g, ()):
+                key = f"list:{name}"
+                t.add_row(Text(f"  {_LIST_LABELS[name]}"), Text(list_summary(self.raw, name)), Text("Enter ▸"), "", "",
+                          key=key)
+                self.order.append(key)
+            for f in groups[g]:
+                self.fields[f.id] = f
+                text, unit, assumed = field_shown(f, self.raw)
+                cells = (Text(text), Text(unit + ("*" if assumed else "")))
+                t.add_row(Text(f"  {f.label}"), *cells, Text(""), Text(""), key=f.id)
+                self._cells.update({(f.id, "value"): cells[0], (f.id, "unit"): cells[1],
+                                    (f.id, "flag"): Text(""), (f.id, "problem"): Text("")})
+                self.order.append(f.id)
+        self.query_one("#general-problems", Static).display = False
+        first = next(i for i, k in enumerate(self.order) if k in self.fields)
+        t.move_cursor(row=first, animate=False)
+        self._load(self.order[first])
 
     def tables_ready(self) -> None:
-        self._set_suggesters()
+        """Completion lists come with the knowledge; nothing in the sheet depends on it."""
 
-    # --- sections ------------------------------------------------------------------------
+    # --- the editor --------------------------------------------------------------------------
 
-    def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
-        if event.option_list.id == "sections":
-            event.stop()
-            self.jump_to(str(event.option.id))
-        elif event.option_list.id == "feature-hits":
-            event.stop()
-            self._add_feature(str(event.option.id))
+    def _load(self, key: str) -> None:
+        """Put the field of sheet row `key` into the editor."""
+        self.current = key
+        label = self.query_one("#editor-label", Static)
+        value = self.query_one("#editor-value", Input)
+        unit = self.query_one("#editor-unit", Picker)
+        f = self.fields.get(key)
+        if f is None:
+            value.display = False
+            unit.display = False
+            if key.startswith("list:"):
+                label.update(Text(f"{_LIST_LABELS[key[5:]]}: Enter opens the list editor", style="bold"))
+            elif key.startswith("derived:"):
+                label.update(Text("Computed by tubulo from the values above (formula and source on the line).",
+                                  style="dim"))
+            else:
+                label.update(Text(f"{key[5:]}: ↓ to its fields", style="dim"))
+            self._show_msg(key)
+            return
+        text, u, assumed = field_shown(f, self._raw())
+        self._shown = (text, u)
+        head = Text(f.label, style="bold")
+        path = f"{f.section}.{f.key}" if f.section else f.key
+        head.append(f"  ({path})", style="dim")
+        if assumed:
+            head.append(f"  * no unit written: read as {u}", style="bold")
+        if f.kind in ("quantity", "bp"):
+            head.append("  value, then the unit (Tab; ← → or Enter to pick)", style="dim")
+        elif f.kind in ("choice", "bool"):
+            head.append("  ← → or Enter to pick", style="dim")
+        elif f.kind == "relatives":
+            head.append("  relation words separated by commas", style="dim")
+        label.update(head)
+        with self.prevent(Input.Changed, Picker.Changed):
+            if f.kind in ("choice", "bool"):
+                value.display = False
+                choices = ("yes", "no") if f.kind == "bool" else f.choices
+                unit.options = [("— not given", "")] + [(c, c) for c in choices]
+                unit.title = f.label
+                unit.set_value(text, notify=False)
+                unit.display = True
+                unit.styles.width = 28
+            else:
+                value.display = True
+                value.value = text
+                value.placeholder = {"bp": "e.g. 118/76", "relatives": "e.g. brother, maternal uncle"}.get(f.kind, "")
+                if f.kind in ("quantity", "bp"):
+                    unit.options = [(x or "(none)", x) for x in dict.fromkeys(f.units)]
+                    unit.title = f"Unit of {f.label}"
+                    unit.set_value(u, notify=False)
+                    unit.display = True
+                    unit.styles.width = 16
+                else:
+                    unit.display = False
+        self._show_msg(key)
 
-    def jump_to(self, group_id: str) -> None:
-        """Scroll the form to a section and focus its first field."""
-        form = self.query_one("#form", VerticalScroll)
-        head = self.query_one(f"#head-{group_id}")
-        form.scroll_to_widget(head, top=True, animate=False)
-        children = list(form.children)
-        for w in children[children.index(head) + 1:]:
-            if isinstance(w, FieldRow):
-                w.query("Input, Picker").first().focus()
-                break
-            if isinstance(w, Input):
-                w.focus()
-                break
+    def _show_msg(self, key: str) -> None:
+        msg = self.query_one("#editor-msg", Static)
+        probs = self.by_field.get(key, [])
+        if key == "list:features":
+            probs = [p for k, v in self.by_field.items() if k.startswith(("features[", "absent_features[")) for p in v]
+        elif key.startswith("list:"):
+            probs = [p for k, v in self.by_field.items() if k.startswith(key[5:] + "[") for p in v]
+        put(msg, problem_text(probs) if probs else Text(""))
+        msg.set_class(any(p.level == "error" for p in probs), "-error")
 
-    # --- features ------------------------------------------------------------------------
+    def _editor_state(self) -> tuple[str, str]:
+        f = self.fields.get(self.current or "")
+        if f is None:
+            return self._shown
+        if f.kind in ("choice", "bool"):
+            return self.query_one("#editor-unit", Picker).value, ""
+        unit = self.query_one("#editor-unit", Picker).value if f.kind in ("quantity", "bp") else ""
+        return self.query_one("#editor-value", Input).value, unit
+
+    def _changed(self) -> None:
+        f = self.fields.get(self.current or "")
+        if f is None:
+            return
+        now = self._editor_state()
+        if now == self._shown:
+            return
+        self._shown = now
+        value = stored_value(f, now[0], now[1])
+        # the sheet's line follows with the evaluation (one re-draw per edit instead of two)
+        self.post_message(FieldEdited(f, value))
 
     def on_input_changed(self, event: Input.Changed) -> None:
-        if event.input.id != "feature-search":
+        if event.input.id == "editor-value":
+            event.stop()
+            self._changed()
+
+    def on_picker_changed(self, event: Picker.Changed) -> None:
+        if event.picker.id == "editor-unit":
+            event.stop()
+            self._changed()
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        if event.input.id == "editor-value":
+            event.stop()
+            self.move(1, keep_editing=False)
+
+    def move(self, delta: int, keep_editing: bool = True) -> None:
+        """Go to the next (or previous) field of the sheet; keep the editor focused if asked."""
+        t = self.query_one("#sheet", DataTable)
+        i = t.cursor_row
+        j = i
+        while 0 <= j + delta < len(self.order):
+            j += delta
+            if not self.order[j].startswith(("head:", "derived:")):
+                break
+        t.move_cursor(row=j, animate=False)
+        self._load(self.order[j])
+        if keep_editing:
+            self._focus_editor()
+        else:
+            t.focus()
+
+    def _focus_editor(self) -> None:
+        f = self.fields.get(self.current or "")
+        if f is None:
             return
-        event.stop()
-        hits = search_hpo(event.value, limit=8)
-        ol = self.query_one("#feature-hits", OptionList)
-        ol.clear_options()
-        weighed = set((getattr(self.app, "tables", None) or {}).get("hpo_labels") or {})
-        for h in hits:
-            t = Text("◆ " if h.id in weighed else "  ")
-            t.append(f"{h.id} {h.label}")
-            if h.matched != h.label:
-                t.append(f"  ({h.matched})", style="dim")
-            ol.add_option(Option(t, id=h.id))
-        ol.display = bool(hits)
-        if hits:
-            ol.highlighted = 0
+        if f.kind in ("choice", "bool"):
+            self.query_one("#editor-unit", Picker).focus()
+        else:
+            self.query_one("#editor-value", Input).focus()
 
     def on_key(self, event: Any) -> None:
         focused = self.app.focused
-        if getattr(focused, "id", None) == "feature-search" and event.key == "down":
-            ol = self.query_one("#feature-hits", OptionList)
-            if ol.display:
+        fid = getattr(focused, "id", None)
+        if fid == "editor-value" and event.key in ("up", "down"):
+            event.stop()
+            self.move(-1 if event.key == "up" else 1)
+        elif fid == "editor-value" and event.key == "escape":
+            event.stop()
+            self.query_one("#sheet", DataTable).focus()
+        elif fid == "editor-unit" and event.key == "escape":
+            event.stop()
+            self.query_one("#sheet", DataTable).focus()
+        elif fid == "sheet" and event.is_printable and event.character and self.current in self.fields:
+            f = self.fields[self.current]
+            if f.kind not in ("choice", "bool"):
                 event.stop()
-                ol.focus()
+                value = self.query_one("#editor-value", Input)
+                value.focus()
+                value.value = event.character
+                value.cursor_position = len(value.value)
 
-    def on_input_submitted(self, event: Input.Submitted) -> None:
-        iid = event.input.id
-        if iid == "feature-search":
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        if event.data_table.id == "sheet" and event.row_key is not None:
             event.stop()
-            ol = self.query_one("#feature-hits", OptionList)
-            if ol.option_count:
-                opt = ol.get_option_at_index(ol.highlighted or 0)
-                self._add_feature(str(opt.id))
-        elif iid in ("med-input", "exp-input"):
+            self._load(str(event.row_key.value))
+
+    def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
+        if event.data_table.id == "sheet":
             event.stop()
-            text = event.value.strip()
-            if text:
-                name = "medications" if iid == "med-input" else "exposures"
-                self.post_message(ListsEdited({name: list_items(self.app.raw, name) + [text]}))
-                event.input.value = ""
+            self.action_edit()
 
-    def _add_feature(self, hid: str) -> None:
-        from ..model import resolve_feature as _resolve
+    def action_edit(self) -> None:
+        key = self.current or ""
+        if key.startswith("list:"):
+            self.open_list(key[5:])
+        elif key.startswith("head:"):
+            self.move(1, keep_editing=False)
+        else:
+            f = self.fields.get(key)
+            self._focus_editor()
+            if f is not None and f.kind in ("choice", "bool"):
+                self.query_one("#editor-unit", Picker).action_open()
 
-        raw = self.app.raw
-        present = list_items(raw, "features")
-        absent = list_items(raw, "absent_features")
-        known = {(_resolve(x) or ("",))[0] for x in present + absent}
-        if hid not in known:
-            hit = _resolve(hid)
-            present.append(f"{hid} {hit[1]}" if hit else hid)
-            self.post_message(ListsEdited({"features": present}))
-        search = self.query_one("#feature-search", Input)
-        search.value = ""
-        self.query_one("#feature-hits", OptionList).display = False
-        search.focus()
-
-    def on_button_pressed(self, event: Button.Pressed) -> None:
-        item = event.button.parent
-        if not isinstance(item, (FeatureItem, DrugItem)):
+    def action_clear(self) -> None:
+        f = self.fields.get(self.current or "")
+        if f is None:
             return
-        event.stop()
-        raw = self.app.raw
-        items = list_items(raw, item.section)
-        if item.index >= len(items):
-            return
-        text = items.pop(item.index)
-        lists: dict[str, list[str]] = {item.section: items}
-        if event.button.has_class("flip"):
-            other = "absent_features" if item.section == "features" else "features"
-            lists[other] = list_items(raw, other) + [text]
-        self.post_message(ListsEdited(lists))
+        if f.kind in ("choice", "bool"):
+            self.query_one("#editor-unit", Picker).set_value("")
+        else:
+            self.query_one("#editor-value", Input).value = ""
 
-    # --- feedback ------------------------------------------------------------------------
+    def select_field(self, fid: str, edit: bool = True) -> None:
+        """Highlight a field (by id, e.g. "serum.potassium") and, if asked, focus its editor."""
+        t = self.query_one("#sheet", DataTable)
+        t.move_cursor(row=self.order.index(fid), animate=False)
+        self._load(fid)
+        if edit:
+            self._focus_editor()
 
-    def refresh_lists(self, raw: Mapping[str, Any], by_field: Mapping[str, list[Problem]]) -> None:
-        """Rebuild the listed features, medications and exposures from the raw mapping."""
-        from ...vocab import lookup_drug, lookup_exposure
+    def open_list(self, name: str) -> None:
+        from .workup_lists import ListEditor
 
+        self.app.push_screen(ListEditor(name))
+
+    # --- feedback ------------------------------------------------------------------------------
+
+    def refresh_lists(self, raw: Mapping[str, Any], by_field: Mapping[str, list[Problem]] | None = None) -> None:
         self.raw = raw
-        tables = getattr(self.app, "tables", None) or {}
-        cands = tables.get("candidates") or {}
-        feats = self.query_one("#feature-items", Vertical)
-        feats.remove_children()
-        rows: list[Any] = []
-        for section in ("features", "absent_features"):
-            for i, text in enumerate(list_items(raw, section)):
-                rows.append(FeatureItem(section, i, text, by_field.get(f"{section}[{i}]", [])))
-        if not rows:
-            rows.append(Static(Text("no findings listed", style="dim"), classes="empty"))
-        feats.mount(*rows)
-        meds = self.query_one("#med-items", Vertical)
-        meds.remove_children()
-        rows = []
-        for i, text in enumerate(list_items(raw, "medications")):
-            m = lookup_drug(text)
-            if m is None:
-                meaning = "not in tubulo's drug knowledge: kept, not weighed"
-            else:
-                name = (cands.get(m.class_id) or {}).get("name", m.class_id)
-                meaning = f"→ {m.inn}: {name}" + (f" (ATC {m.atc})" if m.atc else "")
-            rows.append(DrugItem("medications", i, text, meaning, by_field.get(f"medications[{i}]", [])))
-        meds.mount(*rows)
-        exps = self.query_one("#exp-items", Vertical)
-        exps.remove_children()
-        rows = []
-        for i, text in enumerate(list_items(raw, "exposures")):
-            eid = lookup_exposure(text)
-            meaning = f"→ {eid}" if eid else "not an exposure tubulo knows"
-            rows.append(DrugItem("exposures", i, text, meaning, by_field.get(f"exposures[{i}]", [])))
-        exps.mount(*rows)
+        for name in ("features", "medications", "exposures"):
+            self._cell(f"list:{name}", "value", Text(list_summary(raw, name)))
 
     def show_feedback(self, by_field: Mapping[str, list[Problem]], general: Sequence[Problem],
                       flags: Mapping[str, str | None], derived: Sequence[Mapping[str, Any]] | None) -> None:
-        """Put each problem and note under its field, the rest at the top; flags beside the values."""
-        self._problems = {k: list(v) for k, v in by_field.items()}
-        for row in self.query(FieldRow):
-            row.show_feedback(by_field.get(row.spec.id, []), flags.get(row.spec.measure_key or row.spec.id))
+        """Put each problem and note on its field's line (in full under the editor), the rest on top."""
+        self.by_field = {k: list(v) for k, v in by_field.items()}
+        t = self.query_one("#sheet", DataTable)
+        words = {"low": "▼ low", "high": "▲ high", "normal": "· normal", "critical": "!!! CRIT"}
+        for fid, f in self.fields.items():
+            text, unit, assumed = field_shown(f, self._raw())
+            self._cell(fid, "value", Text(text))
+            self._cell(fid, "unit", Text(unit + ("*" if assumed else "")) if f.kind in ("quantity", "bp") else Text(""))
+            flag = flags.get(f.measure_key or f.id) if f.kind in ("quantity", "bp") else None
+            if f.kind == "bp" and flag is None:
+                flag = flags.get("vitals.diastolic_bp")
+            new_flag = Text(words.get(flag or "", ""), style="bold reverse" if flag == "critical" else "")
+            probs = self.by_field.get(fid, [])
+            first = probs[0] if probs else None
+            prob = Text()
+            if first is not None:
+                prob.append({"error": "✗ ", "warning": "▲ "}.get(first.level, "ⓘ "), style="bold")
+                prob.append(first.message, style="bold" if first.level == "error" else "")
+                if len(probs) > 1:
+                    prob.append(f" (+{len(probs) - 1})")
+            self._cell(fid, "flag", new_flag)
+            self._cell(fid, "problem", prob)
+        for name in ("features", "medications", "exposures"):
+            prefixes = ("features[", "absent_features[") if name == "features" else (f"{name}[",)
+            probs = [p for k, v in self.by_field.items() if k.startswith(prefixes) for p in v]
+            errors = [p for p in probs if p.level == "error"]
+            cell = Text()
+            if probs:
+                cell.append(f"{'✗' if errors else '▲'} {len(probs)} problem{'s' if len(probs) != 1 else ''}: ",
+                            style="bold")
+                cell.append(probs[0].message)
+            self._cell(f"list:{name}", "problem", cell)
         gp = self.query_one("#general-problems", Static)
-        extra = list(general)
-        gp.update(_msg_text(extra) if extra else "")
-        gp.set_class(bool(extra), "-shown")
-        d = self.query_one("#derived", Static)
-        t = Text()
-        for item in derived or []:
-            if not item.get("valid", True) or item.get("value") is None:
-                continue
-            t.append(f"{item['label']}: ", style="bold")
-            t.append(f"{item['value']:.3g} {item.get('unit') or ''}".rstrip())
-            t.append(f"   {item.get('formula', '')}  ({item.get('source', '')})\n", style="dim")
-        d.update(t if t.plain else Text("nothing can be computed from these values yet", style="dim"))
+        put(gp, problem_text(general) if general else Text(""))
+        if gp.display != bool(general):
+            gp.display = bool(general)
+        self._show_derived(derived or [])
+        if self.current:
+            self._show_msg(self.current)
+
+    def _show_derived(self, derived: Sequence[Mapping[str, Any]]) -> None:
+        """The indices computed from the values, as read-only lines at the end of the sheet."""
+        t = self.query_one("#sheet", DataTable)
+        rows = [d for d in derived if d.get("valid", True) and d.get("value") is not None]
+        wanted = ["head:computed"] + [f"derived:{d['id']}" for d in rows] if rows else []
+        have = [k for k in self.order if k == "head:computed" or k.startswith("derived:")]
+        if have != wanted:
+            for k in have:
+                t.remove_row(k)
+                for col in ("value", "unit", "problem"):
+                    self._cells.pop((k, col), None)
+            self.order = [k for k in self.order if k not in have]
+            if rows:
+                t.add_row(Text("COMPUTED FROM THESE VALUES", style="bold"), "", "", "", "", key="head:computed")
+                self.order.append("head:computed")
+                for d in rows:
+                    key = f"derived:{d['id']}"
+                    t.add_row(Text(f"  {d['label']}"), "", "", "", "", key=key)
+                    self.order.append(key)
+        for d in rows:
+            key = f"derived:{d['id']}"
+            self._cell(key, "value", Text(f"{d['value']:.3g}"))
+            self._cell(key, "unit", Text(str(d.get("unit") or "")))
+            self._cell(key, "problem", Text(f"{d.get('formula', '')}  ({d.get('source', '')})", style="dim"))

@@ -1,0 +1,1 @@
+"""Tests of the terminal workbench (tubulo ui)."""
