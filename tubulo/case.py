@@ -9,11 +9,13 @@ The contract is docs/case-format.md.
 from __future__ import annotations
 
 import difflib
+import functools
 import json
 import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
+from types import MappingProxyType
 from typing import Any, Mapping
 
 from .errors import CaseError, KnowledgeError, Problem, UnitError
@@ -30,6 +32,7 @@ __all__ = [
     "load_case",
     "parse_case",
     "read_case_text",
+    "section_keys",
 ]
 
 MAX_CASE_BYTES = 1_000_000  # a workup is a few kB; anything this large is not a case file
@@ -288,8 +291,9 @@ def _all_measurement_keys() -> list[str]:
     return keys
 
 
-def _section_keys(section: str) -> dict[str, str]:
-    """{key as written -> analyte/category key} for a measurement section, aliases included."""
+@functools.lru_cache(maxsize=None)
+def section_keys(section: str) -> Mapping[str, str]:
+    """{key as written -> analyte/category key} for a measurement section, aliases included (read-only, cached)."""
     out: dict[str, str] = {}
     for key, spec in analyte_specs().items():
         sec, name = key.split(".", 1)
@@ -302,7 +306,7 @@ def _section_keys(section: str) -> dict[str, str]:
         sec, name = key.split(".", 1)
         if sec == section:
             out[name] = key
-    return out
+    return MappingProxyType(out)
 
 
 def _fmt(v: Any) -> str:
@@ -560,7 +564,7 @@ def parse_case(data: Mapping[str, Any], source: str = "") -> Case:
     categories: dict[str, str] = {}
     for section in ("vitals", "serum", "blood_gas", "urine", "tests"):
         sec = _mapping(col, section, data.get(section))
-        known = _section_keys(section)
+        known = section_keys(section)
         for key, raw in sec.items():
             path = f"{section}.{key}"
             target = known.get(key) if isinstance(key, str) else None

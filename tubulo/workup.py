@@ -6,6 +6,7 @@ reads the `Workup` it returns.
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 from .case import Case
@@ -13,7 +14,7 @@ from .indices import DerivedIndex, IndexContext, compute_indices
 from .reference import Interval, bp_category, classify, reference_interval
 from .units import analyte_specs
 
-__all__ = ["FlaggedMeasurement", "Workup", "assess", "index_context"]
+__all__ = ["FlaggedMeasurement", "Workup", "assess", "index_context", "measurement_order"]
 
 
 @dataclass(frozen=True)
@@ -56,7 +57,7 @@ def assess(case: Case) -> Workup:
     specs = analyte_specs()
     age, sex = case.patient.age_years, case.patient.sex
     flagged = []
-    for key in sorted(case.measurements, key=_order):
+    for key in sorted(case.measurements, key=measurement_order):
         m = case.measurements[key]
         interval = reference_interval(key, age, sex)
         flag = classify(m.value, interval) if interval else None
@@ -73,6 +74,12 @@ def assess(case: Case) -> Workup:
 _SECTION_ORDER = {"vitals": 0, "serum": 1, "blood_gas": 2, "urine": 3, "tests": 4}
 
 
-def _order(key: str) -> tuple[int, int]:
-    keys = list(analyte_specs())
-    return (_SECTION_ORDER.get(key.split(".")[0], 9), keys.index(key) if key in keys else 999)
+def measurement_order(key: str) -> tuple[int, int]:
+    """Sort key that lists measurements section by section, in knowledge order within a section."""
+    keys = _analyte_positions()
+    return (_SECTION_ORDER.get(key.split(".")[0], 9), keys.get(key, 999))
+
+
+@functools.lru_cache(maxsize=1)
+def _analyte_positions() -> dict[str, int]:
+    return {k: i for i, k in enumerate(analyte_specs())}

@@ -6,7 +6,6 @@ Heavy packages (fhir.resources, pydantic, phenopackets, protobuf) are imported i
 from __future__ import annotations
 
 import argparse
-import os
 import sys
 from datetime import date
 from pathlib import Path
@@ -28,24 +27,12 @@ def write_atomic(path: str | Path, text: str, force: bool = False) -> None:
     folder = target.parent if str(target.parent) else Path(".")
     if not folder.is_dir():
         raise TubuloError(f"{path}: the folder {folder} does not exist")
-    import tempfile
+    from ..atomic import replace_file
 
     try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+        replace_file(target, text.encode("utf-8"))
     except OSError as exc:
         raise TubuloError(f"{path}: cannot write in {folder}: {exc.strerror or exc}") from None
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, target)
-    except OSError as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise TubuloError(f"{path}: cannot write: {exc.strerror or exc}") from None
 
 
 def _date_arg(text: str) -> date:

@@ -10,15 +10,15 @@ from ..rank import RankResult
 from ..scoring import RESIDUAL_ID
 from .check import case_summary, derived_json, fmt_number, measurements_json
 
-__all__ = ["rank_json", "rank_text", "rank_document"]
+__all__ = ["RESIDUAL_META", "rank_json", "rank_text", "rank_document"]
 
-_RESIDUAL = {"id": RESIDUAL_ID, "name": "No listed cause fits", "kind": "residual", "xrefs": [], "genes": [],
+RESIDUAL_META = {"id": RESIDUAL_ID, "name": "No listed cause fits", "kind": "residual", "xrefs": [], "genes": [],
              "segments": []}
 
 
 def _candidate_meta(r: RankResult, cid: str) -> dict[str, Any]:
     if cid == RESIDUAL_ID:
-        return dict(_RESIDUAL)
+        return dict(RESIDUAL_META)
     c = r.tables["candidates"][cid]
     name = c["name"]
     if c["kind"] == "drug":

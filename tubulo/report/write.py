@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
-import os
-import tempfile
 from pathlib import Path
 
+from ..atomic import replace_file
 from ..errors import TubuloError
 
 __all__ = ["FORMATS", "format_for", "write_atomic"]
@@ -36,26 +35,6 @@ def write_atomic(path: str | Path, text: str) -> int:
         raise TubuloError(f"-o/--output: {str(target)!r} is a folder; expected a file name ending in .html or .md")
     data = text.encode("utf-8")
     try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+        return replace_file(target, data)
     except OSError as exc:
-        raise TubuloError(f"-o/--output: cannot write in {str(folder)!r}: {exc.strerror or exc}") from None
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.chmod(tmp, 0o644)
-        os.replace(tmp, target)
-    except OSError as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
         raise TubuloError(f"-o/--output: cannot write {str(target)!r}: {exc.strerror or exc}") from None
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-    return len(data)

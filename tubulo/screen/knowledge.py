@@ -26,14 +26,14 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from ..case import CATEGORIES, SEXES, Case, Patient, _section_keys
+from ..case import CATEGORIES, SEXES, Case, Patient, section_keys as case_section_keys
 from ..findings import variables_spec
 from ..indices import IndexSpec, index_knowledge
 from ..paths import read_knowledge_yaml
 from ..reference import BP_CATEGORIES, critical_limits, reference_interval, reference_tables
 from ..scoring import RESIDUAL_ID, likelihood_table, priors
 from ..units import AnalyteSpec, analyte_specs, convert, normalise_unit, unit_table
-from ..workup import _order
+from ..workup import measurement_order
 
 __all__ = ["ScreenKnowledge", "IntervalTable", "RuleMethod", "RuleCondition", "compile_knowledge",
            "SEX_CODES", "FLAG_LOW", "FLAG_NORMAL", "FLAG_HIGH", "FLAG_NONE", "MEASUREMENT_SECTIONS",
@@ -277,9 +277,9 @@ def compile_knowledge(tables: Mapping[str, Any]) -> ScreenKnowledge:
     """Compile the matrix-path knowledge from the scorer's tables (pure; call once per run)."""
     problems: list[str] = []
     specs = analyte_specs()
-    section_keys = {s: dict(_section_keys(s)) for s in MEASUREMENT_SECTIONS}
+    section_keys = {s: dict(case_section_keys(s)) for s in MEASUREMENT_SECTIONS}
     stored = {spec.stored_as or key for key, spec in specs.items()}
-    value_keys = tuple(sorted(stored, key=_order))
+    value_keys = tuple(sorted(stored, key=measurement_order))
     value_index = {k: i for i, k in enumerate(value_keys)}
     category_values: dict[str, tuple[str, ...]] = {k: tuple(v) for k, v in CATEGORIES.items()}
     for key, spec in specs.items():
@@ -331,9 +331,9 @@ def compile_knowledge(tables: Mapping[str, Any]) -> ScreenKnowledge:
     log_prior = np.array([[math.log(pri[sex][c][0]) for c in candidates] for sex in SEX_CODES])
     weight = float(tables["scoring"].get("evidence_weight",
                                          read_knowledge_yaml("priors.yaml").get("evidence_weight", 1.0)))
-    from ..output.rank import _RESIDUAL
+    from ..output.rank import RESIDUAL_META
 
-    names = tuple(_RESIDUAL["name"] if c == RESIDUAL_ID else tables["candidates"][c]["name"] for c in candidates)
+    names = tuple(RESIDUAL_META["name"] if c == RESIDUAL_ID else tables["candidates"][c]["name"] for c in candidates)
     meta = tables.get("meta") or {}
     return ScreenKnowledge(
         tables=tables, specs=specs, section_keys=section_keys, value_keys=value_keys, value_index=value_index,

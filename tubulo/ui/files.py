@@ -10,9 +10,8 @@ new case keeps its copy in the recovery folder (`<cache dir>/recovery` unless to
 from __future__ import annotations
 
 import json
-import os
+from ..atomic import replace_file
 import shutil
-import tempfile
 from pathlib import Path
 from typing import Any, Mapping
 
@@ -76,20 +75,7 @@ def dump_case(raw: Mapping[str, Any], fmt: str = "yaml") -> str:
 
 def write_atomic(path: str | Path, text: str) -> None:
     """Write `text` to `path` through a temporary file in the same folder and a rename."""
-    p = Path(path)
-    fd, tmp = tempfile.mkstemp(dir=p.parent, prefix=f".{p.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, p)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    replace_file(path, text.encode("utf-8"))
 
 
 def save_case(path: str | Path, raw: Mapping[str, Any]) -> Path | None:
