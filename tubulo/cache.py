@@ -67,13 +67,10 @@ def cached(name: str, builder, key: str | None = None):
 
 
 def _write_atomic(path: Path, obj) -> None:
-    import tempfile
+    from .atomic import replace_file
 
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=path.name, suffix=".tmp")
-        with os.fdopen(fd, "wb") as fh:
-            pickle.dump(obj, fh, protocol=pickle.HIGHEST_PROTOCOL)
-        os.replace(tmp, path)
+        replace_file(path, pickle.dumps(obj, protocol=pickle.HIGHEST_PROTOCOL), mode=0o600)
     except OSError:
         pass  # an unwritable cache only costs speed

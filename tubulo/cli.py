@@ -26,7 +26,23 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def build_parser() -> argparse.ArgumentParser:
+# The module that registers each command. A run that names a known command builds only that command's
+# parser (a cold start pays for one module); help, an unknown command or no command builds them all.
+_COMMAND_MODULES = {
+    "check": "",
+    "knowledge": "tubulo.kb.cli",
+    "rank": "tubulo.engine_cli",
+    "predict": "tubulo.engine_cli",
+    "report": "tubulo.report.cli",
+    "screen": "tubulo.screen.cli",
+    "ui": "tubulo.ui_cli",
+    "import": "tubulo.interop.cli",
+    "export": "tubulo.interop.cli",
+}
+
+
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The full parser, or (given a command name) one holding only that command and `check`."""
     parser = argparse.ArgumentParser(
         prog="tubulo",
         description="Offline clinical reasoning about the renal tubule (decision support, not a diagnosis).",
@@ -38,7 +54,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print JSON (keys: case, measurements, derived)")
     p.add_argument("--all", action="store_true", help="also list the indices that cannot be computed, with why")
     p.set_defaults(handler=_cmd_check)
-    for module in ("tubulo.kb.cli", "tubulo.engine_cli", "tubulo.report.cli", "tubulo.screen.cli", "tubulo.ui_cli", "tubulo.interop.cli"):
+    if command in _COMMAND_MODULES:
+        modules = tuple(m for m in (_COMMAND_MODULES[command],) if m)
+    else:
+        modules = tuple(dict.fromkeys(m for m in _COMMAND_MODULES.values() if m))
+    for module in modules:
         try:
             mod = __import__(module, fromlist=["add_subparser"])
         except ImportError:
@@ -48,7 +68,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    parser = build_parser()
+    words = list(sys.argv[1:] if argv is None else argv)
+    first = words[0] if words and words[0] in _COMMAND_MODULES else None
+    parser = build_parser(first)
     args = parser.parse_args(argv)
     handler = getattr(args, "handler", None) or getattr(args, "func", None)
     if handler is None:

@@ -20,7 +20,7 @@ from types import MappingProxyType
 from typing import Any, Callable, Mapping
 
 from .errors import CaseError, KnowledgeError, Problem
-from .paths import read_knowledge_yaml
+from .paths import require_knowledge_yaml
 
 __all__ = [
     "DerivedIndex",
@@ -662,13 +662,7 @@ def _check_param(value: Any, kind: str, shared: Mapping[str, float], fail: Calla
 @cache
 def index_knowledge() -> IndexKnowledge:
     """The parsed `knowledge/indices.yaml` (cached per process)."""
-    try:
-        data = read_knowledge_yaml(KNOWLEDGE_FILE)
-    except OSError as exc:
-        raise KnowledgeError(f"{KNOWLEDGE_FILE}: cannot be read ({exc})") from None
-    except Exception as exc:  # a YAML syntax error
-        raise KnowledgeError(f"{KNOWLEDGE_FILE}: not valid YAML ({exc})") from None
-    return parse_index_knowledge(data)
+    return parse_index_knowledge(require_knowledge_yaml(KNOWLEDGE_FILE))
 
 
 def index_spec(index_id: str) -> IndexSpec:

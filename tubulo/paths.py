@@ -5,7 +5,7 @@ from __future__ import annotations
 from functools import cache
 from pathlib import Path
 
-__all__ = ["knowledge_dir", "read_knowledge_yaml"]
+__all__ = ["knowledge_dir", "read_knowledge_yaml", "require_knowledge_yaml"]
 
 
 @cache
@@ -32,6 +32,18 @@ def read_knowledge_yaml(name: str):
     if name not in parsed:
         raise FileNotFoundError(knowledge_dir() / name)
     return parsed[name]
+
+
+def require_knowledge_yaml(name: str):
+    """Like `read_knowledge_yaml`, but a missing file is a KnowledgeError that names it."""
+    from .errors import KnowledgeError
+
+    try:
+        return read_knowledge_yaml(name)
+    except FileNotFoundError:
+        raise KnowledgeError(f"{name}: file missing from the knowledge folder") from None
+    except OSError as exc:
+        raise KnowledgeError(f"{name}: cannot be read ({exc.strerror or exc})") from None
 
 
 # Files only the knowledge compiler reads (a case run reads the compiled tables instead); kept in a

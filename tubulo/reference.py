@@ -18,7 +18,7 @@ from types import MappingProxyType
 from typing import Any, Mapping
 
 from .errors import CaseError, KnowledgeError, Problem
-from .paths import read_knowledge_yaml
+from .paths import require_knowledge_yaml
 
 __all__ = [
     "BP_CATEGORIES",
@@ -303,13 +303,7 @@ def parse_reference_knowledge(data: Any, file: str = KNOWLEDGE_FILE) -> Referenc
 @cache
 def reference_tables() -> ReferenceTables:
     """The parsed `knowledge/reference_intervals.yaml` (cached per process)."""
-    try:
-        data = read_knowledge_yaml(KNOWLEDGE_FILE)
-    except OSError as exc:
-        raise KnowledgeError(f"{KNOWLEDGE_FILE}: cannot be read ({exc})") from None
-    except Exception as exc:  # a YAML syntax error
-        raise KnowledgeError(f"{KNOWLEDGE_FILE}: not valid YAML ({exc})") from None
-    return parse_reference_knowledge(data)
+    return parse_reference_knowledge(require_knowledge_yaml(KNOWLEDGE_FILE))
 
 
 # --------------------------------------------------------------------------------------------

@@ -473,3 +473,71 @@ def test_an_unknown_key_shows_with_its_hint_and_can_be_cleared(tmp_path):
         assert app.evaluation.valid
 
     run_app(app, scenario)
+
+
+@pytest.mark.parametrize("suffix, marker", [(".html", "<html"), (".md", "# "), (".txt", "Decision support")])
+def test_export_report_writes_what_the_report_commands_write(tmp_path, demo_copy, suffix, marker):
+    from datetime import date
+
+    from tubulo.output.rank import rank_text
+    from tubulo.report import make_report
+
+    app = make_app(demo_copy, tmp_path)
+    target = tmp_path / f"out{suffix}"
+
+    async def scenario(app, pilot):
+        await pilot.press("ctrl+r")
+        await pilot.pause()
+        assert isinstance(app.screen, AskPath)
+        app.screen.query_one(Input).value = str(target)
+        await pilot.press("enter")
+        await pilot.pause()
+        text = target.read_text(encoding="utf-8")
+        result = app.valid_evaluation.result
+        if suffix == ".txt":
+            assert text == rank_text(result, 8)
+        else:  # the same document `tubulo report` builds from this result
+            assert text == make_report(result, suffix[1:], date=date.today().isoformat())
+        assert marker in text
+        assert app.valid_evaluation.document["candidates"][0]["name"] in text
+        assert "not a diagnosis" in text
+
+    run_app(app, scenario)
+
+
+def test_export_report_refuses_an_unknown_suffix(tmp_path, demo_copy):
+    app = make_app(demo_copy, tmp_path)
+    target = tmp_path / "out.pdf"
+
+    async def scenario(app, pilot):
+        await pilot.press("ctrl+r")
+        await pilot.pause()
+        app.screen.query_one(Input).value = str(target)
+        await pilot.press("enter")
+        await pilot.pause()
+        assert not target.exists()
+        assert any(".html, .md or .txt" in str(n.message) for n in app._notifications)
+
+    run_app(app, scenario)
+
+
+def test_the_mouse_selects_and_opens_a_candidate_and_switches_views(tmp_path):
+    app = make_app(DEMO, tmp_path)
+
+    async def scenario(app, pilot):
+        table = app.query_one("#diff-table", DataTable)
+        view = app.query_one(DifferentialView)
+        assert table.cursor_row == 0
+        # the first data row sits one line under the header; one click moves there, a second opens it
+        assert await pilot.click("#diff-table", offset=(10, 2))
+        await pilot.pause()
+        assert table.cursor_row == 1 and app.query_one("#tabs").active == "differential"
+        assert await pilot.click("#diff-table", offset=(10, 2))
+        await pilot.pause()
+        assert app.query_one("#tabs").active == "evidence"
+        assert app.query_one(EvidenceView).cid == view.rows[1]["id"]
+        assert await pilot.click("#--content-tab-nephron")
+        await pilot.pause()
+        assert app.query_one("#tabs").active == "nephron"
+
+    run_app(app, scenario)

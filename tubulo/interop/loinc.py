@@ -11,7 +11,7 @@ from functools import cache
 from typing import Any, Mapping
 
 from ..errors import KnowledgeError
-from ..paths import read_knowledge_yaml
+from ..paths import require_knowledge_yaml
 from ..units import analyte_specs
 
 __all__ = ["LoincEntry", "LoincTable", "SPECIMENS", "check_digit", "loinc_table", "parse_loinc_table",
@@ -65,11 +65,7 @@ def check_digit(number: str) -> int:
 @cache
 def loinc_table() -> LoincTable:
     """Read and check knowledge/loinc.yaml; KnowledgeError naming the entry and field when wrong."""
-    try:
-        raw = read_knowledge_yaml(FILE)
-    except FileNotFoundError:
-        raise KnowledgeError(f"{FILE}: file missing from the knowledge folder") from None
-    return parse_loinc_table(raw)
+    return parse_loinc_table(require_knowledge_yaml(FILE))
 
 
 def parse_loinc_table(raw: Any) -> LoincTable:

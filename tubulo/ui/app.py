@@ -73,7 +73,8 @@ class TubuloApp(App[int]):
         Binding("f8", "cautions", "cautions", tooltip="every caution with its source"),
         Binding("ctrl+s", "save", "save", tooltip="save the workup as a case file (a backup of the old one is kept)"),
         Binding("ctrl+e", "export_json", "JSON", tooltip="export the result as JSON (the `tubulo rank --json` document)"),
-        Binding("ctrl+r", "export_report", "report", tooltip="export the text report (as `tubulo rank` prints it)"),
+        Binding("ctrl+r", "export_report", "report",
+                tooltip="export the report: .html or .md as `tubulo report` writes it, .txt as `tubulo rank` prints it"),
         Binding("ctrl+q", "leave", "quit", priority=True, tooltip="quit (asks first when there are unsaved changes)"),
     ]
 
@@ -510,11 +511,30 @@ class TubuloApp(App[int]):
         ev = self._current_result()
         if ev is None:
             return
-        from ..output.rank import rank_text
+        self.push_screen(AskPath("Export the report (.html, .md or .txt) to", self._default_path(".report.html")),
+                         lambda p: self._export_report(p, ev) if p else None)
 
-        text = rank_text(ev.result, 8)
-        self.push_screen(AskPath("Export the text report to", self._default_path(".report.txt")),
-                         lambda p: self._export(p, text) if p else None)
+    def _export_report(self, path: str, ev: Evaluation) -> None:
+        """The printable report of `tubulo report` for .html/.md, the `tubulo rank` text for .txt."""
+        suffix = Path(path).suffix.lower()
+        if suffix == ".txt":
+            from ..output.rank import rank_text
+
+            text = rank_text(ev.result, 8)
+        else:
+            from datetime import date
+
+            from ..errors import TubuloError
+            from ..report import make_report
+            from ..report.write import format_for
+
+            try:
+                fmt = format_for(path, None)
+            except TubuloError:
+                self.notify(f"not written: {path!r} must end in .html, .md or .txt", severity="error", timeout=10)
+                return
+            text = make_report(ev.result, fmt, date=date.today().isoformat())
+        self._export(path, text)
 
     def _export(self, path: str, text: str) -> None:
         target = Path(path).expanduser()

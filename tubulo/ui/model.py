@@ -433,7 +433,7 @@ class Evaluation:
     problems: tuple[Problem, ...] = ()
     notes: tuple[Problem, ...] = ()
     document: Mapping[str, Any] | None = None  # rank_document of the result (None when invalid)
-    result: Any = None  # the RankResult (for the text report), None when invalid
+    result: Any = None  # the RankResult (for the exported report), None when invalid
     seconds: float = 0.0
     generation: int = 0
     extra: Mapping[str, Any] = field(default_factory=dict)
