@@ -6,7 +6,7 @@ from dataclasses import dataclass
 from typing import Any, Mapping
 
 from .findings import Findings
-from .scoring import RESIDUAL_ID, Evidence, Scored, state_probability
+from .scoring import RESIDUAL_ID, Evidence, Scored, per_tables, state_probability
 
 __all__ = ["Explained", "EvidenceItem", "explain"]
 
@@ -39,11 +39,17 @@ def _abnormal(var: str, state: str, tables: Mapping[str, Any]) -> bool:
 
 
 def _path(tables: Mapping[str, Any], cid: str, var: str) -> tuple[Mapping[str, Any], ...]:
-    entry = (tables.get("paths") or {}).get(cid, {}).get(var)
-    if not entry:
-        return ()
-    return tuple({k: step.get(k) for k in ("node", "label", "kind", "edge", "sign", "source", "note") if step.get(k) is not None}
-                 for step in entry.get("steps") or ())
+    memo = per_tables(tables, "explain_paths", dict)
+    key = (cid, var)
+    hit = memo.get(key)
+    if hit is None:
+        entry = (tables.get("paths") or {}).get(cid, {}).get(var)
+        hit = memo[key] = () if not entry else tuple(
+            {k: step.get(k) for k in _STEP_KEYS if step.get(k) is not None} for step in entry.get("steps") or ())
+    return hit
+
+
+_STEP_KEYS = ("node", "label", "kind", "edge", "sign", "source", "note")
 
 
 def _label(tables: Mapping[str, Any], var: str) -> str:

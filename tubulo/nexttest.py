@@ -7,9 +7,10 @@ from dataclasses import dataclass
 from typing import Any, Mapping, Sequence
 
 from .findings import Findings, _gate_holds, feature_terms, variables_spec
-from .scoring import RESIDUAL_ID, Scored, _priors_conf, compiled_likelihoods, feature_background, state_probability
+from .scoring import (RESIDUAL_ID, Scored, _priors_conf, compiled_likelihoods, feature_background, per_tables,
+                      state_probability)
 
-__all__ = ["NextTest", "next_tests"]
+__all__ = ["NextTest", "information_gain", "next_tests"]
 
 COST_ORDER = {"bedside": 0, "routine": 1, "special": 2, "genetic": 3}
 
@@ -28,32 +29,49 @@ def _entropy(ps: Sequence[float]) -> float:
     return -sum(p * math.log2(p) for p in ps if p > 0)
 
 
-_BG: dict[tuple, list[float]] = {}
+@dataclass(frozen=True)
+class _Dist:
+    probs: tuple[float, ...]  # P(state | candidate), in the variable's state order
+    entropy: float  # bits
+    mode: int  # index of the most likely state (first on ties)
 
 
-def _background_list(tid: int, var: str, states: tuple[str, ...], leak: float, spec) -> list[float]:
-    key = (tid, var, states, leak)
-    if key not in _BG:
-        if len(_BG) > 4096:
-            _BG.clear()
-        _BG[key] = [state_probability(spec.get("background"), list(states), s, leak) for s in states]
-    return _BG[key]
+def information_gain(pi: Sequence[float], dists: Sequence[Sequence[float]], entropies: Sequence[float]) -> float:
+    """Expected entropy reduction (bits) of the candidate posterior `pi` from observing one variable.
+
+    Mutual information is symmetric: H(C) - E[H(C|X)] = H(X) - sum_i pi_i H(X|c_i), with X's marginal
+    P(x) = sum_i pi_i P(x|c_i); the right side needs no posterior per state (Cover & Thomas 2006,
+    Elements of Information Theory, eq. 2.39-2.43).
+    """
+    n = len(dists[0])
+    marginal = [sum(p * d[k] for p, d in zip(pi, dists)) for k in range(n)]
+    return _entropy(marginal) - sum(p * h for p, h in zip(pi, entropies))
 
 
-def _dist(tables, cid: str, var: str) -> list[float]:
-    """P(state | candidate) over the variable's states (background when the candidate is silent)."""
+def _dist(tables, cid: str, var: str, memo: dict) -> _Dist:
+    """P(state | candidate) over the variable's states (background when the candidate is silent); `memo`
+    lives as long as the tables, since next tests asks this for every leader and every open variable."""
+    key = (cid, var)
+    hit = memo.get(key)
+    if hit is None:
+        probs = _compute_dist(tables, cid, var)
+        hit = memo[key] = _Dist(probs, _entropy(probs), max(range(len(probs)), key=lambda k: probs[k]))
+    return hit
+
+
+def _compute_dist(tables, cid: str, var: str) -> tuple[float, ...]:
     leak = float(tables["scoring"]["leak"])
     spec = tables["variables"].get(var)
     if spec is not None:
         states = list(spec["states"])
         row = None if cid == RESIDUAL_ID else compiled_likelihoods(tables)[cid][0].get(var)
         if row is not None:
-            return [row[s][0] for s in states]
-        return _background_list(id(tables), var, tuple(states), leak, spec)
+            return tuple(row[s][0] for s in states)
+        return tuple(state_probability(spec.get("background"), states, s, leak) for s in states)
     fb = feature_background(tables, var)
     m = None if cid == RESIDUAL_ID else (tables["candidates"][cid].get("manifests") or {}).get(var)
     p = (1 - leak) * float(m.get("present", fb)) + leak / 2 if m else fb
-    return [p, 1 - p]
+    return (p, 1 - p)
 
 
 def next_tests(scored: Sequence[Scored], findings: Findings, tables: Mapping[str, Any], top: int = 8,
@@ -62,7 +80,6 @@ def next_tests(scored: Sequence[Scored], findings: Findings, tables: Mapping[str
     lead = [s for s in scored[:pool] if s.probability > 1e-6]
     z = sum(s.probability for s in lead)
     pi = [s.probability / z for s in lead]
-    h0 = _entropy(pi)
     variables = tables["variables"]
     candidates = []
     for var, spec in variables.items():
@@ -86,21 +103,15 @@ def next_tests(scored: Sequence[Scored], findings: Findings, tables: Mapping[str
         label = hpo_labels.get(key, key)
         candidates.append((key, label, f"look for: {label}", costs.get(key, "bedside")))
     out = []
+    memo = per_tables(tables, "next_test_dists", dict)
+    ids = [s.id for s in lead]
     for var, label, test, cost in candidates:
-        dists = [_dist(tables, s.id, var) for s in lead]
-        n = len(dists[0])
-        expected = 0.0
-        for k in range(n):
-            ps = sum(pi[i] * dists[i][k] for i in range(len(lead)))
-            if ps <= 0:
-                continue
-            post = [pi[i] * dists[i][k] / ps for i in range(len(lead))]
-            expected += ps * _entropy(post)
-        gain = h0 - expected
+        rows = [memo.get((cid, var)) or _dist(tables, cid, var, memo) for cid in ids]
+        gain = information_gain(pi, [r.probs for r in rows], [r.entropy for r in rows])
         if gain < 0.01:
             continue
         # the leaders whose most likely state differs from the top candidate's
-        best = [max(range(n), key=lambda k: d[k]) for d in dists]
+        best = [r.mode for r in rows]
         sep = [lead[i].id for i in range(min(6, len(lead))) if best[i] != best[0]]
         if sep:
             sep = [lead[0].id] + sep

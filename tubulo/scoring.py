@@ -15,7 +15,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from functools import cache
-from typing import Any, Mapping
+from typing import Any, Callable, Mapping
 
 from .case import Case
 from .findings import Findings, feature_terms
@@ -205,28 +205,57 @@ def feature_background(tables: Mapping[str, Any], key: str) -> float:
     return compiled_likelihoods(tables)[_FEATURE_BG].get(key, float(_priors_conf()["feature_background"]))
 
 
+def per_tables(tables: Mapping[str, Any], name: str, build: Callable[[], Any]) -> Any:
+    """`build()` memoized for the life of one tables object (identity-checked, newest tables only)."""
+    slot = _PER_TABLES.get(name)
+    if slot is not None and slot[0] is tables:
+        return slot[1]
+    value = build()
+    _PER_TABLES[name] = (tables, value)
+    return value
+
+
+_PER_TABLES: dict[str, tuple[Any, Any]] = {}
+
+
 def likelihood_table(cid: str, obs: Mapping[str, str] | _ObsContext, tables: Mapping[str, Any]) -> list[Evidence]:
-    """Per observed variable: P(state | candidate), P(state | background) and the capped log ratio."""
-    cap = float(tables["scoring"]["llr_cap"])
-    fb = float(_priors_conf()["feature_background"])
+    """Per observed variable: P(state | candidate), P(state | background) and the capped log ratio.
+
+    Each (candidate, variable, state) Evidence is made once per tables and then reused (it is immutable);
+    only the states a case observes are ever built, so a cold start pays for one case, not for all.
+    """
     ctx = obs if isinstance(obs, _ObsContext) else _context(obs)
-    var_rows, feats = compiled_likelihoods(tables)[cid]
+    memo = per_tables(tables, "evidence", dict)
+    compiled = compiled_likelihoods(tables)
+    var_rows, feats = compiled[cid]
+    cap = None
     out: list[Evidence] = []
     for var, state in ctx.items:
         row = var_rows.get(var)
         if row is None or state not in row:
             continue  # silent: background on both sides, ratio 1
-        p, q = row[state]
-        out.append(Evidence(var, state, _llr(p, q, cap), p, q))
-    bgs = compiled_likelihoods(tables)[_FEATURE_BG]
-    for key, p_present in feats:
-        state = _feature_state(key, ctx)
-        if state is None:
-            continue
-        f = bgs.get(key, fb)
-        p = p_present if state == "present" else 1.0 - p_present
-        q = f if state == "present" else 1.0 - f
-        out.append(Evidence(key, state, _llr(p, q, cap), p, q))
+        key = (cid, var, state)
+        e = memo.get(key)
+        if e is None:
+            cap = float(tables["scoring"]["llr_cap"]) if cap is None else cap
+            p, q = row[state]
+            e = memo[key] = Evidence(var, state, _llr(p, q, cap), p, q)
+        out.append(e)
+    if feats:
+        bgs = compiled[_FEATURE_BG]
+        for hid, p_present in feats:
+            state = _feature_state(hid, ctx)
+            if state is None:
+                continue
+            key = (cid, hid, state)
+            e = memo.get(key)
+            if e is None:
+                cap = float(tables["scoring"]["llr_cap"]) if cap is None else cap
+                f = bgs.get(hid, float(_priors_conf()["feature_background"]))
+                p = p_present if state == "present" else 1.0 - p_present
+                q = f if state == "present" else 1.0 - f
+                e = memo[key] = Evidence(hid, state, _llr(p, q, cap), p, q)
+            out.append(e)
     return out
 
 

@@ -42,9 +42,9 @@ def rank_document(r: RankResult, top: int | None = None) -> dict[str, Any]:
         ex = r.explained.get(s.id)
         if ex is not None:
             d["support"] = [{"variable": e.variable, "label": e.label, "state": e.state, "log_lr": _r(e.log_lr, 4),
-                             "from": e.basis, "path": list(e.path)} for e in ex.support]
+                             "from": e.basis, "path": [dict(step) for step in e.path]} for e in ex.support]
             d["against"] = [{"variable": e.variable, "label": e.label, "state": e.state, "log_lr": _r(e.log_lr, 4),
-                             "from": e.basis, "path": list(e.path)} for e in ex.against]
+                             "from": e.basis, "path": [dict(step) for step in e.path]} for e in ex.against]
             d["unexplained"] = list(ex.unexplained)
         d["prior_notes"] = list(s.prior_notes)
         cands.append(d)
