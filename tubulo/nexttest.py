@@ -55,23 +55,39 @@ def _dist(tables, cid: str, var: str, memo: dict) -> _Dist:
     hit = memo.get(key)
     if hit is None:
         probs = _compute_dist(tables, cid, var)
-        hit = memo[key] = _Dist(probs, _entropy(probs), max(range(len(probs)), key=lambda k: probs[k]))
+        if probs is None:  # silent on this variable: the background, shared by every silent candidate
+            hit = memo.get((None, var))
+            if hit is None:
+                probs = _background_dist(tables, var)
+                hit = memo[(None, var)] = _Dist(probs, _entropy(probs), max(range(len(probs)), key=lambda k: probs[k]))
+        else:
+            hit = _Dist(probs, _entropy(probs), max(range(len(probs)), key=lambda k: probs[k]))
+        memo[key] = hit
     return hit
 
 
-def _compute_dist(tables, cid: str, var: str) -> tuple[float, ...]:
-    leak = float(tables["scoring"]["leak"])
+def _compute_dist(tables, cid: str, var: str) -> tuple[float, ...] | None:
+    """The candidate's own distribution over the variable's states, or None when it is silent there."""
     spec = tables["variables"].get(var)
     if spec is not None:
-        states = list(spec["states"])
         row = None if cid == RESIDUAL_ID else compiled_likelihoods(tables)[cid][0].get(var)
-        if row is not None:
-            return tuple(row[s][0] for s in states)
+        return None if row is None else tuple(row[s][0] for s in spec["states"])
+    m = None if cid == RESIDUAL_ID else (tables["candidates"][cid].get("manifests") or {}).get(var)
+    if not m:
+        return None
+    leak = float(tables["scoring"]["leak"])
+    p = (1 - leak) * float(m.get("present", feature_background(tables, var))) + leak / 2
+    return (p, 1 - p)
+
+
+def _background_dist(tables, var: str) -> tuple[float, ...]:
+    spec = tables["variables"].get(var)
+    if spec is not None:
+        leak = float(tables["scoring"]["leak"])
+        states = list(spec["states"])
         return tuple(state_probability(spec.get("background"), states, s, leak) for s in states)
     fb = feature_background(tables, var)
-    m = None if cid == RESIDUAL_ID else (tables["candidates"][cid].get("manifests") or {}).get(var)
-    p = (1 - leak) * float(m.get("present", fb)) + leak / 2 if m else fb
-    return (p, 1 - p)
+    return (fb, 1 - fb)
 
 
 def next_tests(scored: Sequence[Scored], findings: Findings, tables: Mapping[str, Any], top: int = 8,
