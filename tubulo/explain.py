@@ -31,11 +31,8 @@ class Explained:
 
 
 def _abnormal(var: str, state: str, tables: Mapping[str, Any]) -> bool:
-    spec = tables["variables"].get(var) or {}
-    direction = (spec.get("direction") or {}).get(state)
-    if direction is not None:
-        return direction != 0
-    return state not in ("normal", "negative", "absent", "intact", "appropriate", "conserving")
+    """Whether the state is a finding to explain (`abnormal` in variables.yaml)."""
+    return state in ((tables["variables"].get(var) or {}).get("abnormal") or ())
 
 
 def _path(tables: Mapping[str, Any], cid: str, var: str) -> tuple[Mapping[str, Any], ...]:

@@ -192,3 +192,26 @@ def test_one_faulty_variable_does_not_hide_the_others(good_copy):
     _, problems = check_knowledge(good_copy)
     errors = [str(x) for x in problems if x.level == "error"]
     assert len(errors) == 1 and "variable 'serum_potassium': field colour: unknown field" in errors[0]
+
+
+@pytest.mark.parametrize("edit, what", [
+    (("    abnormal: [very_low, low, high, very_high]\n", ""), "field abnormal: missing required field"),
+    (("    abnormal: [very_low, low, high, very_high]\n", "    abnormal: [low, lowish]\n"),
+     "abnormal names unknown states ['lowish']"),
+    (("    abnormal: [very_low, low, high, very_high]\n", "    abnormal: [very_low, low, normal, high, very_high]\n"),
+     "at least one state must be unremarkable"),
+    (("    abnormal: [very_low, low, high, very_high]\n", "    abnormal: [low, high, very_high]\n"),
+     "hpo names states ['very_low'] that abnormal does not list"),
+    (("    abnormal: [very_low, low, high, very_high]\n", "    abnormal: [very_low, low, normal, high]\n"),
+     "abnormal lists ['normal'], of direction 0"),
+])
+def test_abnormal_states_are_checked(good_copy, edit, what):
+    p = good_copy / "variables.yaml"
+    text = p.read_text()
+    assert edit[0] in text
+    p.write_text(text.replace(edit[0], edit[1], 1))
+    _, problems = check_knowledge(good_copy)
+    # the faulty entry, located; manifests and gates that use the dropped variable are reported apart
+    errors = [str(x) for x in problems if x.level == "error" and "variable 'serum_potassium'" in str(x)]
+    assert len(errors) == 1, errors
+    assert errors[0].startswith("variables.yaml:5:") and what in errors[0], errors[0]

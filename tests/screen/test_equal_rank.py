@@ -152,12 +152,14 @@ def test_property_any_case_equals_rank_case(sk, tables, data):
 
 
 def test_abnormal_states_follow_variables_yaml(sk):
-    """A state named by an HPO term is abnormal; a state of direction 0 (normal) never is."""
+    """Flagged exactly when variables.yaml lists the state as abnormal; so a state named by an HPO term
+    always is, and a state of direction 0 (normal) never is (the knowledge check enforces both)."""
     from tubulo.findings import variables_spec
 
     for var, spec in variables_spec().items():
         for state in spec["states"]:
             flagged = abnormal(sk, {var: state}) is not None
+            assert flagged == (state in spec["abnormal"]), (var, state)
             if state in (spec.get("hpo") or {}):
                 assert flagged, (var, state)
             if (spec.get("direction") or {}).get(state) == 0:

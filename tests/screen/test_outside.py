@@ -54,3 +54,24 @@ def test_adult_blood_pressure_categories(sk, bp, high):
     # not hypertension (Whelton PK et al. 2017 ACC/AHA guideline, Hypertension; from memory)
     row = _row(sk, **{"age": 50.0, "sex": "female", "vitals.blood_pressure [mmHg]": bp})
     assert ("blood_pressure=high" in (row["flags"] or "")) is high
+
+
+@pytest.mark.parametrize("ph,pco2,hco3,state", [(7.25, 70.0, 30.0, "respiratory_acidosis"),
+                                                 (7.52, 26.0, 21.0, "respiratory_alkalosis")])
+def test_respiratory_acid_base_disorders_are_flagged(sk, ph, pco2, hco3, state):
+    # a primary respiratory disorder: pH and pCO2 move in opposite directions, bicarbonate compensates
+    # only partly (Berend K, de Vries APJ, Gans ROB 2014 N Engl J Med; from memory)
+    row = _row(sk, **{"age": 50.0, "sex": "male", "blood_gas.ph": ph, "blood_gas.pco2 [mmHg]": pco2,
+                      "blood_gas.bicarbonate [mmol/L]": hco3, "serum.sodium [mmol/L]": 140.0,
+                      "serum.chloride [mmol/L]": 102.0, "serum.bicarbonate [mmol/L]": hco3})
+    assert row["error"] is None
+    assert f"acid_base={state}" in (row["flags"] or "").split("; ")
+
+
+def test_unremarkable_states_are_not_flagged(sk):
+    # normal potassium and a normal blood gas: nothing to flag
+    row = _row(sk, **{"age": 50.0, "sex": "male", "serum.potassium [mmol/L]": 4.2, "blood_gas.ph": 7.40,
+                      "blood_gas.pco2 [mmHg]": 40.0, "blood_gas.bicarbonate [mmol/L]": 24.0,
+                      "serum.sodium [mmol/L]": 140.0, "serum.chloride [mmol/L]": 104.0,
+                      "serum.bicarbonate [mmol/L]": 24.0})
+    assert row["error"] is None and row["flags"] is None

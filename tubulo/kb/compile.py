@@ -159,7 +159,8 @@ def _share(obj: Any, memo: dict) -> Any:
 
 
 def _variable(v) -> dict:
-    return {"label": v.label, "states": list(v.states), "direction": dict(v.direction), "hpo": dict(v.hpo),
+    return {"label": v.label, "states": list(v.states), "abnormal": list(v.abnormal), "direction": dict(v.direction),
+            "hpo": dict(v.hpo),
             "gate": v.gate.model_dump(exclude_none=True) if v.gate else None,
             "background": dict(v.background), "cost": v.cost}
 

@@ -330,6 +330,7 @@ class Gate(_Strict):
 class Variable(_Strict):
     label: str
     states: list[str] = Field(min_length=2)
+    abnormal: list[str] = Field(min_length=1)  # the states that are a finding to explain
     direction: dict[str, Literal[-1, 0, 1]] = {}
     hpo: dict[str, str] = {}
     gate: Gate | None = None
@@ -341,10 +342,19 @@ class Variable(_Strict):
     @model_validator(mode="after")
     def _states_known(self) -> "Variable":
         known = set(self.states)
-        for field in ("direction", "hpo", "background"):
+        for field in ("abnormal", "direction", "hpo", "background"):
             extra = set(getattr(self, field)) - known
             if extra:
                 raise ValueError(f"{field} names unknown states {sorted(extra)}; states are {self.states}")
+        if set(self.abnormal) == known:
+            raise ValueError(f"abnormal lists every state {self.states}; at least one state must be unremarkable")
+        zero = sorted(st for st in self.abnormal if self.direction.get(st) == 0)
+        if zero:
+            raise ValueError(f"abnormal lists {zero}, of direction 0 (the normal point of the quantity)")
+        unmarked = sorted(set(self.hpo) - set(self.abnormal))
+        if unmarked:
+            raise ValueError(f"hpo names states {unmarked} that abnormal does not list; a state an HPO "
+                             f"phenotype names is abnormal")
         for state, term in self.hpo.items():
             if not HPO_RE.match(term):
                 raise ValueError(f"hpo.{state}: {term!r} is not an HPO id HP:nnnnnnn")

@@ -42,7 +42,7 @@ from pathlib import Path
 
 __all__ = ["load_tables", "load_graph_view", "folder_hash", "find_nodes", "TABLES_VERSION", "GRAPH_VIEW_KEYS"]
 
-TABLES_VERSION = 1  # raise when the layout below changes, so that old caches are not read
+TABLES_VERSION = 2  # raise when the layout below changes, so that old caches are not read
 GRAPH_VIEW_KEYS = ("adjacency", "lookup")
 
 

@@ -264,13 +264,9 @@ def _gate_problems(gate: Any, states: Mapping[str, tuple[str, ...]], var: str) -
 
 
 def _abnormal(spec: Mapping[str, Any]) -> np.ndarray:
-    """A state is abnormal when variables.yaml names it with an HPO term, or when it moves a
-    quantity away from a state the file marks as normal (direction 0)."""
-    states = list(spec["states"])
-    hpo = spec.get("hpo") or {}
-    direction = spec.get("direction") or {}
-    has_normal = any(d == 0 for d in direction.values())
-    return np.array([s in hpo or (has_normal and direction.get(s, 0) != 0) for s in states], dtype=bool)
+    """Per state, whether it is a finding to explain (`abnormal` in variables.yaml)."""
+    abnormal = set(spec.get("abnormal") or ())
+    return np.array([s in abnormal for s in spec["states"]], dtype=bool)
 
 
 def compile_knowledge(tables: Mapping[str, Any]) -> ScreenKnowledge:
