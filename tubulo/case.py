@@ -13,10 +13,9 @@ import functools
 import json
 import math
 import re
-from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from .errors import CaseError, KnowledgeError, Problem, UnitError
 from .units import AnalyteSpec, analyte_specs, convert, parse_number_unit
@@ -65,8 +64,7 @@ SPECIAL = {"vitals.blood_pressure"}
 _BP = re.compile(r"^\s*(\d+(?:\.\d+)?)\s*/\s*(\d+(?:\.\d+)?)\s*(.*?)\s*$")
 
 
-@dataclass(frozen=True)
-class Measurement:
+class Measurement(NamedTuple):
     """One value, in the analyte's internal unit, with the text the user wrote."""
 
     key: str
@@ -76,8 +74,7 @@ class Measurement:
     assumed_unit: bool = False
 
 
-@dataclass(frozen=True)
-class Patient:
+class Patient(NamedTuple):
     age_years: float | None = None
     sex: str = "unknown"
     weight_kg: float | None = None
@@ -85,15 +82,13 @@ class Patient:
     pregnant: bool | None = None
 
 
-@dataclass(frozen=True)
-class Family:
+class Family(NamedTuple):
     consanguinity: bool | None = None
     affected_relatives: tuple[str, ...] = ()
     pattern: str | None = None
 
 
-@dataclass(frozen=True)
-class Feature:
+class Feature(NamedTuple):
     """An HPO term the user gave (as an id or as a phrase)."""
 
     hpo: str
@@ -101,26 +96,24 @@ class Feature:
     given: str
 
 
-@dataclass(frozen=True)
-class Medication:
+class Medication(NamedTuple):
     given: str
     inn: str | None = None
     class_id: str | None = None
     atc: str | None = None
 
 
-@dataclass(frozen=True)
-class Case:
+class Case(NamedTuple):
     id: str
-    patient: Patient = field(default_factory=Patient)
+    patient: Patient = Patient()
     onset: str | None = None
-    family: Family = field(default_factory=Family)
+    family: Family = Family()
     features: tuple[Feature, ...] = ()
     absent_features: tuple[Feature, ...] = ()
     medications: tuple[Medication, ...] = ()
     exposures: tuple[str, ...] = ()
-    measurements: Mapping[str, Measurement] = field(default_factory=dict)
-    categories: Mapping[str, str] = field(default_factory=dict)
+    measurements: Mapping[str, Measurement] = MappingProxyType({})
+    categories: Mapping[str, str] = MappingProxyType({})
     notes: tuple[Problem, ...] = ()
     source: str = ""
 

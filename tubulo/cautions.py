@@ -2,8 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from .findings import Findings
 from .output.check import fmt_number
@@ -16,8 +15,7 @@ __all__ = ["Caution", "cautions"]
 LEVELS = {"critical": 0, "warning": 1, "info": 2}
 
 
-@dataclass(frozen=True)
-class Caution:
+class Caution(NamedTuple):
     level: str  # critical | warning | info
     message: str
     source: str = ""

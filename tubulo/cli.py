@@ -41,14 +41,42 @@ _COMMAND_MODULES = {
 }
 
 
+def _columns() -> int:
+    """Help width as argparse takes it ($COLUMNS, else the terminal, less 2), without importing shutil."""
+    import os
+
+    try:
+        cols = int(os.environ["COLUMNS"])
+    except (KeyError, ValueError):
+        try:
+            cols = os.get_terminal_size(sys.__stdout__.fileno()).columns
+        except (AttributeError, ValueError, OSError):
+            cols = 80
+    return max(cols - 2, 20)
+
+
+class _Formatter(argparse.HelpFormatter):
+    # argparse builds a formatter for every add_argument call, and its default width imports shutil
+    # (a few ms of a cold start); the width is read here the same way instead.
+    def __init__(self, prog: str, **kwargs) -> None:
+        kwargs.setdefault("width", _columns())
+        super().__init__(prog, **kwargs)
+
+
+class _Parser(argparse.ArgumentParser):
+    def __init__(self, *args, **kwargs) -> None:
+        kwargs.setdefault("formatter_class", _Formatter)
+        super().__init__(*args, **kwargs)
+
+
 def build_parser(command: str | None = None) -> argparse.ArgumentParser:
     """The full parser, or (given a command name) one holding only that command and `check`."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="tubulo",
         description="Offline clinical reasoning about the renal tubule (decision support, not a diagnosis).",
     )
     parser.add_argument("--version", action="version", version=f"tubulo {__version__}")
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     p = sub.add_parser("check", help="validate a case; show measurements with reference flags and derived indices")
     p.add_argument("case", help="case file (.yaml or .json)")
     p.add_argument("--json", action="store_true", help="print JSON (keys: case, measurements, derived)")

@@ -2,13 +2,12 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from typing import NamedTuple
 
 __all__ = ["TubuloError", "CaseError", "UnitError", "KnowledgeError", "Problem"]
 
 
-@dataclass(frozen=True)
-class Problem:
+class Problem(NamedTuple):
     """One thing wrong with an input: where (a dotted path), what was found, what was expected."""
 
     path: str

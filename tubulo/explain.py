@@ -2,8 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from .findings import Findings
 from .scoring import RESIDUAL_ID, Evidence, Scored, per_tables, state_probability
@@ -13,8 +12,7 @@ __all__ = ["Explained", "EvidenceItem", "explain"]
 _MIN_LLR = 0.05  # below this a variable neither supports nor argues against
 
 
-@dataclass(frozen=True)
-class EvidenceItem:
+class EvidenceItem(NamedTuple):
     variable: str
     label: str
     state: str
@@ -23,8 +21,7 @@ class EvidenceItem:
     path: tuple[Mapping[str, Any], ...]
 
 
-@dataclass(frozen=True)
-class Explained:
+class Explained(NamedTuple):
     support: tuple[EvidenceItem, ...]
     against: tuple[EvidenceItem, ...]
     unexplained: tuple[str, ...]

@@ -8,9 +8,9 @@ that state when no measurement decided it.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from types import MappingProxyType
 from functools import cache
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from .paths import read_knowledge_yaml
 from .reference import classify, reference_interval
@@ -19,8 +19,7 @@ from .workup import Workup
 __all__ = ["Finding", "Findings", "derive_findings", "variables_spec", "feature_terms"]
 
 
-@dataclass(frozen=True)
-class Finding:
+class Finding(NamedTuple):
     """One observed variable: its state, what decided it, and the rule's source."""
 
     variable: str
@@ -28,13 +27,12 @@ class Finding:
     label: str
     hpo: str | None
     basis: str  # plain words: which input and which threshold decided the state
-    inputs: Mapping[str, float] = field(default_factory=dict)
+    inputs: Mapping[str, float] = MappingProxyType({})
     source: str = ""
     origin: str = "measured"  # measured | feature | absent_feature | reported
 
 
-@dataclass(frozen=True)
-class Findings:
+class Findings(NamedTuple):
     """All findings of a case: variables, and the HPO features as present/absent."""
 
     variables: Mapping[str, Finding]

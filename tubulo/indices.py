@@ -14,10 +14,9 @@ the medicines and local laboratory practice in mind.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 from functools import cache
 from types import MappingProxyType
-from typing import Any, Callable, Mapping
+from typing import Any, Callable, Mapping, NamedTuple
 
 from .errors import CaseError, KnowledgeError, Problem
 from .paths import require_knowledge_yaml
@@ -45,8 +44,7 @@ _URINE_VOLUME = "urine.volume"
 _URINE_OUTPUT = "vitals.urine_output"
 
 
-@dataclass(frozen=True)
-class IndexContext:
+class IndexContext(NamedTuple):
     """Patient facts an index may need besides the measurements."""
 
     age_years: float | None = None
@@ -57,8 +55,7 @@ class IndexContext:
     pregnant: bool | None = None
 
 
-@dataclass(frozen=True)
-class DerivedIndex:
+class DerivedIndex(NamedTuple):
     """One computed (or not computable) index with what it was computed from."""
 
     id: str
@@ -72,8 +69,7 @@ class DerivedIndex:
     reason: str | None
 
 
-@dataclass(frozen=True)
-class IndexSpec:
+class IndexSpec(NamedTuple):
     """One entry of `knowledge/indices.yaml`."""
 
     id: str
@@ -86,11 +82,10 @@ class IndexSpec:
     params: Mapping[str, Any]
     constants: Mapping[str, float]
     uses: tuple[str, ...] = ()
-    branches: Mapping[str, Mapping[str, str]] = field(default_factory=dict)
+    branches: Mapping[str, Mapping[str, str]] = MappingProxyType({})
 
 
-@dataclass(frozen=True)
-class IndexKnowledge:
+class IndexKnowledge(NamedTuple):
     """The parsed index file: shared constants and the index specs in file order."""
 
     shared: Mapping[str, float]
@@ -102,8 +97,7 @@ class IndexKnowledge:
 # --------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
-class _Out:
+class _Out(NamedTuple):
     value: float | None
     valid: bool
     reason: str | None

@@ -3,8 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from typing import Any, Mapping, Sequence
+from typing import Any, Mapping, NamedTuple, Sequence
 
 from .findings import Findings, _gate_holds, feature_terms, variables_spec
 from .scoring import (RESIDUAL_ID, Scored, _priors_conf, compiled_likelihoods, feature_background, per_tables,
@@ -15,8 +14,7 @@ __all__ = ["NextTest", "information_gain", "next_tests"]
 COST_ORDER = {"bedside": 0, "routine": 1, "special": 2, "genetic": 3}
 
 
-@dataclass(frozen=True)
-class NextTest:
+class NextTest(NamedTuple):
     variable: str
     label: str
     test: str
@@ -29,8 +27,7 @@ def _entropy(ps: Sequence[float]) -> float:
     return -sum(p * math.log2(p) for p in ps if p > 0)
 
 
-@dataclass(frozen=True)
-class _Dist:
+class _Dist(NamedTuple):
     probs: tuple[float, ...]  # P(state | candidate), in the variable's state order
     entropy: float  # bits
     mode: int  # index of the most likely state (first on ties)

@@ -2,16 +2,14 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any, Mapping, Sequence
+from typing import Any, Mapping, NamedTuple, Sequence
 
 from .scoring import Scored
 
 __all__ = ["Panel", "gene_panel"]
 
 
-@dataclass(frozen=True)
-class Panel:
+class Panel(NamedTuple):
     genes: tuple[tuple[str, float], ...]  # (HGNC symbol, share of the inherited posterior mass)
     cover: tuple[str, ...]  # smallest greedy list covering `coverage` of that mass
     coverage: float

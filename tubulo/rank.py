@@ -3,8 +3,7 @@ panel, cautions.  `rank_case` is pure given the compiled tables."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from .case import Case
 from .cautions import Caution, cautions
@@ -18,8 +17,7 @@ from .workup import Workup, assess
 __all__ = ["RankResult", "rank_case", "load_tables"]
 
 
-@dataclass(frozen=True)
-class RankResult:
+class RankResult(NamedTuple):
     workup: Workup
     findings: Findings
     scored: tuple[Scored, ...]

@@ -12,10 +12,9 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass, replace
 from functools import cache
 from types import MappingProxyType
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from .errors import CaseError, KnowledgeError, Problem
 from .paths import require_knowledge_yaml
@@ -47,8 +46,7 @@ _AGE_TEXT = re.compile(r"^\s*(\d+(?:\.\d+)?)\s*(d|mo)\s*$")
 _ROW_FIELDS = ("analyte", "sex", "age_min", "age_max", "low", "high", "unit", "group", "source")
 
 
-@dataclass(frozen=True)
-class Interval:
+class Interval(NamedTuple):
     """One reference (or limit) row as it applies to a patient."""
 
     analyte: str
@@ -63,8 +61,7 @@ class Interval:
     age_max: float | None = None
 
 
-@dataclass(frozen=True)
-class BPCategory:
+class BPCategory(NamedTuple):
     """Blood pressure category for age: low | normal | elevated | stage1 | stage2 | unclassified."""
 
     category: str
@@ -72,8 +69,7 @@ class BPCategory:
     source: str
 
 
-@dataclass(frozen=True)
-class _HypotensionRow:
+class _HypotensionRow(NamedTuple):
     age_min: float
     age_max: float | None
     systolic_below: float | None
@@ -81,8 +77,7 @@ class _HypotensionRow:
     per_year: float | None
 
 
-@dataclass(frozen=True)
-class _BPTables:
+class _BPTables(NamedTuple):
     adult: Mapping[str, float]
     adult_source: str
     child: Mapping[str, float]
@@ -92,8 +87,7 @@ class _BPTables:
     hypotension_source: str
 
 
-@dataclass(frozen=True)
-class ReferenceTables:
+class ReferenceTables(NamedTuple):
     """The parsed file: rows by section and analyte, groups, blood pressure tables."""
 
     sections: Mapping[str, Mapping[str, tuple[Interval, ...]]]
@@ -342,7 +336,7 @@ def _select(rows: tuple[Interval, ...], age: float, sex: str) -> Interval | None
         high = None if f.high is None or m.high is None else max(f.high, m.high)
         source = f.source if f.source == m.source else f"{f.source}; {m.source}"
         note = "sex not given: union of the female and male intervals" + (f"; {f.note}" if f.note else "")
-        return replace(f, low=low, high=high, source=source, note=note, sex="any",
+        return f._replace(low=low, high=high, source=source, note=note, sex="any",
                        age_min=max(f.age_min, m.age_min), age_max=_min_age_max(f.age_max, m.age_max))
     return None
 

@@ -13,9 +13,8 @@ Pure functions over the compiled tables; deterministic (sorted iteration, no ran
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from functools import cache
-from typing import Any, Callable, Mapping
+from typing import Any, Callable, Mapping, NamedTuple
 
 from .case import Case
 from .findings import Findings, feature_terms
@@ -27,8 +26,7 @@ __all__ = ["Evidence", "Scored", "RESIDUAL_ID", "score", "state_probability", "p
 RESIDUAL_ID = "residual"
 
 
-@dataclass(frozen=True)
-class Evidence:
+class Evidence(NamedTuple):
     variable: str  # a variable id or an HPO id
     state: str
     log_lr: float
@@ -36,8 +34,7 @@ class Evidence:
     p_background: float
 
 
-@dataclass(frozen=True)
-class Scored:
+class Scored(NamedTuple):
     id: str
     probability: float
     log_prior: float
@@ -108,8 +105,7 @@ def _hpo_ancestors(hid: str) -> frozenset[str]:
     return frozenset(out)
 
 
-@dataclass(frozen=True)
-class _ObsContext:
+class _ObsContext(NamedTuple):
     """The observations in the shapes the scorer needs (built once per case)."""
 
     items: tuple[tuple[str, str], ...]  # sorted (variable, state), variables only

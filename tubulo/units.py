@@ -18,9 +18,8 @@ from __future__ import annotations
 import difflib
 import itertools
 import re
-from dataclasses import dataclass
 from functools import cache
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from .errors import KnowledgeError, UnitError
 from .paths import knowledge_dir, read_knowledge_yaml
@@ -40,8 +39,7 @@ _NUMBER = re.compile(r"^\s*([-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?)\s
 _CREATININE_MOLAR_MASS_KEY = "urine.creatinine"
 
 
-@dataclass(frozen=True)
-class AnalyteSpec:
+class AnalyteSpec(NamedTuple):
     """What `knowledge/analytes.yaml` says about one measurable quantity."""
 
     key: str
@@ -62,8 +60,7 @@ class AnalyteSpec:
     note: str | None = None
 
 
-@dataclass(frozen=True)
-class ParsedQuantity:
+class ParsedQuantity(NamedTuple):
     """A number and the unit it was written in (None when the text had no unit)."""
 
     number: float

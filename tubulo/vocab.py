@@ -9,9 +9,8 @@ from __future__ import annotations
 import difflib
 import json
 import re
-from dataclasses import dataclass
 from functools import cache
-from typing import Mapping
+from typing import Mapping, NamedTuple
 
 from .paths import knowledge_dir, read_knowledge_yaml
 
@@ -33,8 +32,7 @@ __all__ = [
 _HPO_ID = re.compile(r"^(HP:\d{7})\b\s*(.*)$")
 
 
-@dataclass(frozen=True)
-class HpoTerm:
+class HpoTerm(NamedTuple):
     id: str
     label: str
     synonyms: tuple[str, ...]
@@ -42,8 +40,7 @@ class HpoTerm:
     obsolete: bool = False
 
 
-@dataclass(frozen=True)
-class DrugMatch:
+class DrugMatch(NamedTuple):
     """A medication name resolved to its INN and the drug class (ranking candidate) it belongs to."""
 
     inn: str

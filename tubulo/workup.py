@@ -7,7 +7,7 @@ reads the `Workup` it returns.
 from __future__ import annotations
 
 import functools
-from dataclasses import dataclass
+from typing import NamedTuple
 
 from .case import Case
 from .indices import DerivedIndex, IndexContext, compute_indices
@@ -17,8 +17,7 @@ from .units import analyte_specs
 __all__ = ["FlaggedMeasurement", "Workup", "assess", "index_context", "measurement_order"]
 
 
-@dataclass(frozen=True)
-class FlaggedMeasurement:
+class FlaggedMeasurement(NamedTuple):
     key: str
     label: str
     given: str
@@ -29,8 +28,7 @@ class FlaggedMeasurement:
     flag: str | None  # low | normal | high | None (no interval for this analyte and age)
 
 
-@dataclass(frozen=True)
-class Workup:
+class Workup(NamedTuple):
     case: Case
     measurements: tuple[FlaggedMeasurement, ...]
     derived: tuple[DerivedIndex, ...]

@@ -3,7 +3,6 @@ atomic writing and the command line, on every demo case."""
 
 from __future__ import annotations
 
-import dataclasses
 import json
 import os
 import re
@@ -279,7 +278,7 @@ def test_malicious_case_text_is_escaped():
 @given(st.text(min_size=1, max_size=60))
 def test_any_case_id_is_escaped_in_html_and_markdown(text):
     base = build_report(_result(str(CASES[0])), date=DATE)
-    r = dataclasses.replace(base, case_id=text)
+    r = base._replace(case_id=text)
     html = render_html(r)
     assert escape(text, quote=True) in html
     shown = " ".join(text.split())
@@ -288,7 +287,7 @@ def test_any_case_id_is_escaped_in_html_and_markdown(text):
     assert _md_plain(title) == f"# Tubule work-up report: {shown}"
     if "<" in text:
         # the raw text may occur no more often than in a report whose id is harmless
-        neutral = render_html(dataclasses.replace(base, case_id="x"))
+        neutral = render_html(base._replace(case_id="x"))
         assert html.count(text) <= neutral.count(text)
 
 

@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import subprocess
 import sys
-from dataclasses import replace
 
 from tubulo.screen.check import self_check
 from tubulo.screen.run import ChunkReport, screen_table
@@ -20,14 +19,14 @@ def test_self_check_finds_the_paths_equal(sk):
 
 
 def test_self_check_catches_a_matrix_path_that_drifted(sk):
-    drifted = replace(sk, evidence_weight=sk.evidence_weight * 1.1)
+    drifted = sk._replace(evidence_weight=sk.evidence_weight * 1.1)
     problems = self_check(drifted, n=60, seed=62)
     assert problems and "probability" in " ".join(problems)
 
 
 def test_unsupported_knowledge_sends_every_case_to_the_single_path(sk, tables):
     cases = sample_cases(sk, 30, seed=63)
-    fallback = replace(sk, unsupported=("a rule the matrix path does not read",))
+    fallback = sk._replace(unsupported=("a rule the matrix path does not read",))
     rep = ChunkReport()
     out = screen_table(to_long(cases), "long", fallback, report=rep).to_pylist()
     assert rep.matrix == 0 and rep.single + rep.errors == len(cases) and rep.single > 20

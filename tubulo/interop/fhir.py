@@ -15,10 +15,9 @@ from __future__ import annotations
 import json
 import math
 import re
-from dataclasses import dataclass
 from datetime import date, datetime, timedelta, timezone
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from ..errors import TubuloError, UnitError
 from ..units import analyte_specs, convert, parse_number_unit
@@ -49,8 +48,7 @@ _SPECIMEN_WORDS = (("urine", "urine"), ("serum", "serum_plasma"), ("plasma", "se
                    ("blood", "blood"), ("arterial", "blood"), ("venous", "blood"), ("capillary", "blood"))
 
 
-@dataclass(frozen=True)
-class ImportedValue:
+class ImportedValue(NamedTuple):
     """One value written into the case, with where it came from and what was set aside."""
 
     key: str  # case key as written, e.g. serum.potassium (serum.bun for urea nitrogen)
@@ -61,21 +59,18 @@ class ImportedValue:
     others: tuple[str, ...] = ()  # older values of the same analyte, not kept
 
 
-@dataclass(frozen=True)
-class ImportedMedication:
+class ImportedMedication(NamedTuple):
     name: str  # the name written into the case (an INN when tubulo knows the drug)
     resource: str
     how: str  # plain words: which code or text gave the name
 
 
-@dataclass(frozen=True)
-class Skipped:
+class Skipped(NamedTuple):
     resource: str
     reason: str
 
 
-@dataclass(frozen=True)
-class FhirImport:
+class FhirImport(NamedTuple):
     """A bundle turned into a case mapping (not yet validated by parse_case)."""
 
     case: Mapping[str, Any]
@@ -273,8 +268,7 @@ def _concept_text(concept: Any) -> str:
     return ""
 
 
-@dataclass(frozen=True)
-class _Candidate:
+class _Candidate(NamedTuple):
     key: str
     group: str  # the stored key (serum.bun and serum.urea are one analyte)
     text: str

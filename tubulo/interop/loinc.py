@@ -6,9 +6,8 @@ Also the UCUM spellings: a UCUM unit code turned into the spelling tubulo's unit
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
 from functools import cache
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from ..errors import KnowledgeError
 from ..paths import require_knowledge_yaml
@@ -23,8 +22,7 @@ _CODE = re.compile(r"^(\d{1,7})-(\d)$")
 _ANNOTATION = re.compile(r"\{[^{}]*\}")
 
 
-@dataclass(frozen=True)
-class LoincEntry:
+class LoincEntry(NamedTuple):
     """One LOINC code tubulo reads (and maybe writes)."""
 
     code: str
@@ -35,8 +33,7 @@ class LoincEntry:
     qualitative: bool = False
 
 
-@dataclass(frozen=True)
-class LoincTable:
+class LoincTable(NamedTuple):
     source: str
     codes: Mapping[str, LoincEntry]
     ucum_spellings: tuple[tuple[str, str], ...]

@@ -15,9 +15,8 @@ suggested gene panel, and the cautions.  What has no code to carry it is listed 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from datetime import datetime, timezone
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from .. import __version__
 from ..rank import RankResult
@@ -51,8 +50,7 @@ _RESOURCES: dict[str, dict[str, str]] = {
 }
 
 
-@dataclass(frozen=True)
-class PhenopacketExport:
+class PhenopacketExport(NamedTuple):
     document: Mapping[str, Any]
     left_out: tuple[str, ...]  # what the document could not carry, in plain words
     critical: tuple[str, ...]  # critical-value messages (also written into the document)

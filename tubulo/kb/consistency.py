@@ -24,7 +24,7 @@ or any disagreement is unexplained.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from typing import NamedTuple
 
 import networkx as nx
 
@@ -35,8 +35,7 @@ from .schema import StateManifest
 __all__ = ["Comparison", "ConsistencyReport", "curated_sign", "compare_candidate", "consistency_report"]
 
 
-@dataclass(frozen=True)
-class Comparison:
+class Comparison(NamedTuple):
     """One candidate-variable pair: predicted and curated direction, and whether they agree."""
 
     candidate: str
@@ -50,8 +49,7 @@ class Comparison:
     note: str | None = None
 
 
-@dataclass(frozen=True)
-class ConsistencyReport:
+class ConsistencyReport(NamedTuple):
     """Every compared pair, the agreement rate and what is left unexplained."""
 
     comparisons: tuple[Comparison, ...]
@@ -155,7 +153,7 @@ def consistency_report(kn: Knowledge, g: nx.MultiDiGraph,
             x = listed.get((c.candidate, c.variable))
             if not c.agrees and x is not None:
                 used.add((c.candidate, c.variable))
-                c = Comparison(**{**c.__dict__, "reason": x.reason, "note": x.note})
+                c = c._replace(reason=x.reason, note=x.note)
             comps.append(c)
     stale = tuple(k for k in listed if k not in used)
     if kn.meta is None:

@@ -27,7 +27,7 @@ variable's `direction` map.
 from __future__ import annotations
 
 from collections import deque
-from dataclasses import dataclass
+from typing import NamedTuple
 
 import networkx as nx
 
@@ -127,8 +127,7 @@ def _gene(g: nx.MultiDiGraph, symbol: str) -> None:
         g.add_node(gene_node(symbol), kind="gene", label=symbol)
 
 
-@dataclass(frozen=True)
-class PathStep:
+class PathStep(NamedTuple):
     """One hop of a causal path: the node reached, the edge that led there, the sign so far."""
 
     node: str
@@ -145,8 +144,7 @@ class PathStep:
                 "sign": self.sign, "direction": self.direction, "source": self.source, "note": self.note}
 
 
-@dataclass(frozen=True)
-class Prediction:
+class Prediction(NamedTuple):
     """The signed reach of a candidate at one node: sign(s) of its shortest paths and one path per sign."""
 
     node: str

@@ -13,9 +13,9 @@ are validated by their own modules and skipped here.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from types import MappingProxyType
 from pathlib import Path
-from typing import Any
+from typing import Any, NamedTuple
 
 import yaml
 from pydantic import BaseModel, ValidationError
@@ -41,8 +41,7 @@ _TARGET_SECTIONS = ("transporters", "hormones", "mechanisms", "exposures")
 _Loader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
 
 
-@dataclass(frozen=True)
-class EdgeRecord:
+class EdgeRecord(NamedTuple):
     """A signed causal edge with the file and line it came from."""
 
     edge: S.Edge
@@ -50,8 +49,7 @@ class EdgeRecord:
     line: int
 
 
-@dataclass(frozen=True)
-class Knowledge:
+class Knowledge(NamedTuple):
     """The validated knowledge: parsed entries by section, with where each came from."""
 
     folder: Path
@@ -70,7 +68,7 @@ class Knowledge:
     scoring: S.Scoring | None
     hpo_exceptions: S.HpoExceptions | None
     consistency_exceptions: S.ConsistencyExceptions | None
-    origin: dict[str, tuple[str, int]] = field(default_factory=dict)
+    origin: dict[str, tuple[str, int]] = MappingProxyType({})
     warnings: tuple[Problem, ...] = ()
 
     def candidates(self) -> dict[str, S.Disorder | S.DrugClass]:

@@ -48,16 +48,9 @@ GRAPH_VIEW_KEYS = ("adjacency", "lookup")
 
 def folder_hash(folder: Path) -> str:
     """The cache key of a knowledge folder other than the installed one (same rule as `knowledge_hash`)."""
-    import hashlib
+    from ..cache import content_hash
 
-    from .. import __version__
-
-    h = hashlib.sha256(__version__.encode())
-    for pattern in ("*.yaml", "*.txt", "*.json"):
-        for path in sorted(Path(folder).glob(pattern)):
-            h.update(path.name.encode())
-            h.update(path.read_bytes())
-    return h.hexdigest()[:20]
+    return content_hash(Path(folder))
 
 
 def _key(folder: Path | str | None) -> str:

@@ -3,8 +3,7 @@ that the HTML and Markdown renderers lay out the same way, section by section.""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from ..errors import KnowledgeError
 from ..output.check import fmt_number
@@ -37,22 +36,19 @@ _FLAG_WORDS = {"low": "LOW", "high": "HIGH", "normal": "in range"}
 _KIND_WORDS = {"inherited": "inherited", "acquired": "acquired", "drug": "drug effect", "residual": "none listed"}
 
 
-@dataclass(frozen=True)
-class Fact:
+class Fact(NamedTuple):
     label: str
     value: str
 
 
-@dataclass(frozen=True)
-class CautionItem:
+class CautionItem(NamedTuple):
     level: str  # critical | warning | info
     message: str
     source: str
     id: str
 
 
-@dataclass(frozen=True)
-class MeasurementRow:
+class MeasurementRow(NamedTuple):
     label: str
     key: str
     given: str
@@ -65,8 +61,7 @@ class MeasurementRow:
     note: str
 
 
-@dataclass(frozen=True)
-class IndexRow:
+class IndexRow(NamedTuple):
     label: str
     id: str
     value: str
@@ -78,8 +73,7 @@ class IndexRow:
     reason: str
 
 
-@dataclass(frozen=True)
-class FindingRow:
+class FindingRow(NamedTuple):
     label: str
     state: str
     code: str
@@ -87,8 +81,7 @@ class FindingRow:
     origin: str
 
 
-@dataclass(frozen=True)
-class CandidateRow:
+class CandidateRow(NamedTuple):
     rank: int
     id: str
     name: str
@@ -98,8 +91,7 @@ class CandidateRow:
     xrefs: tuple[str, ...]
 
 
-@dataclass(frozen=True)
-class Step:
+class Step(NamedTuple):
     label: str
     node: str
     kind: str
@@ -109,8 +101,7 @@ class Step:
     note: str
 
 
-@dataclass(frozen=True)
-class EvidenceItem:
+class EvidenceItem(NamedTuple):
     label: str
     state: str
     log_lr: float
@@ -118,8 +109,7 @@ class EvidenceItem:
     path: tuple[Step, ...]
 
 
-@dataclass(frozen=True)
-class CandidateEvidence:
+class CandidateEvidence(NamedTuple):
     rank: int
     id: str
     name: str
@@ -132,16 +122,14 @@ class CandidateEvidence:
     segments: tuple[str, ...]  # segment labels
 
 
-@dataclass(frozen=True)
-class NextTestRow:
+class NextTestRow(NamedTuple):
     test: str
     cost: str
     bits: float
     separates: tuple[str, ...]
 
 
-@dataclass(frozen=True)
-class PanelInfo:
+class PanelInfo(NamedTuple):
     cover: tuple[tuple[str, float], ...]  # (gene, share of the inherited probability)
     covered: float
     target: float
@@ -149,8 +137,7 @@ class PanelInfo:
     listed: int
 
 
-@dataclass(frozen=True)
-class NephronInfo:
+class NephronInfo(NamedTuple):
     placement: Placement
     part_labels: tuple[tuple[str, str], ...]  # drawn part id -> knowledge label, in drawing order
     outside: tuple[Fact, ...]  # label -> candidate ranks
@@ -158,8 +145,7 @@ class NephronInfo:
     legend: tuple[Fact, ...]  # "1 name" -> its segments, or a statement that none are listed
 
 
-@dataclass(frozen=True)
-class Report:
+class Report(NamedTuple):
     case_id: str
     date: str
     critical: tuple[CautionItem, ...]

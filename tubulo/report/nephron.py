@@ -8,15 +8,13 @@ the pieces; a cell type without a piece of its own marks the unit that holds it)
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Iterable, Mapping
+from typing import Iterable, Mapping, NamedTuple
 from xml.sax.saxutils import escape, quoteattr
 
 __all__ = ["Part", "PARTS", "DRAWN", "Placement", "place_segments", "nephron_svg"]
 
 
-@dataclass(frozen=True)
-class Part:
+class Part(NamedTuple):
     """One drawn piece of the schematic: a segment id, its outline and where its label sits."""
 
     id: str
@@ -52,8 +50,7 @@ PARTS: tuple[Part, ...] = (
 DRAWN: frozenset[str] = frozenset(p.id for p in PARTS)
 
 
-@dataclass(frozen=True)
-class Placement:
+class Placement(NamedTuple):
     """Where a list of segments lands on the drawing.
 
     `parts` maps each drawn part to the candidate ranks that implicate it; `outside` names the

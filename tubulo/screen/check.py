@@ -13,7 +13,6 @@ import functools
 import hashlib
 import math
 import sys
-from dataclasses import replace
 from pathlib import Path
 from typing import Any, Mapping
 
@@ -103,4 +102,4 @@ def checked_knowledge(tables: Mapping[str, Any] | None = None) -> ScreenKnowledg
         return sk
     note = (f"self-check: {len(problems)} of {SAMPLE} sample cases differ between the matrix path and the "
             f"single-case path (first: {problems[0]})")
-    return replace(sk, unsupported=(note,))
+    return sk._replace(unsupported=(note,))

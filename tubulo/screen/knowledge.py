@@ -21,8 +21,7 @@ run then scores every case on the single-case path and says why.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 import numpy as np
 
@@ -58,8 +57,7 @@ VECTOR_METHODS = ("fractional_excretion", "reabsorbed_fraction", "tmp_gfr_payne"
                   "daily_excretion")
 
 
-@dataclass(frozen=True)
-class IntervalTable:
+class IntervalTable(NamedTuple):
     """Limits of one analyte (or index) for every age segment and sex code.
 
     `has[seg, sex]` says whether an interval applies; `low`/`high` are NaN where that side has no limit."""
@@ -70,16 +68,14 @@ class IntervalTable:
     high: np.ndarray
 
 
-@dataclass(frozen=True)
-class RuleCondition:
+class RuleCondition(NamedTuple):
     state: int  # code of the state in the variable's state list
     is_codes: tuple | None  # for categorical inputs: allowed codes; for numeric inputs: allowed numbers
     flag: int | None  # FLAG_LOW / FLAG_NORMAL / FLAG_HIGH
     bounds: tuple[tuple[str, float], ...]  # ((below|at_most|above|at_least, limit), ...)
 
 
-@dataclass(frozen=True)
-class RuleMethod:
+class RuleMethod(NamedTuple):
     kind: str  # measure | derived | category | bp | none
     name: str  # measurement key, index id or category key
     when: tuple[tuple[str, tuple[int, ...]], ...]  # (category key, allowed codes)
@@ -88,8 +84,7 @@ class RuleMethod:
     uses_flag: bool = False  # some condition reads the flag: without an interval the method is skipped
 
 
-@dataclass(frozen=True)
-class ScreenKnowledge:
+class ScreenKnowledge(NamedTuple):
     """Everything the matrix path reads, compiled from the tables of one knowledge version."""
 
     tables: Mapping[str, Any]

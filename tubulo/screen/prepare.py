@@ -23,7 +23,7 @@ from __future__ import annotations
 import difflib
 import re
 from dataclasses import dataclass
-from typing import Any, Callable
+from typing import Any, Callable, NamedTuple
 
 import numpy as np
 import pyarrow as pa
@@ -79,8 +79,7 @@ def _as_written(text: str, unit: str | None) -> Any:
     return int(text) if _INT.match(text) else float(text)
 
 
-@dataclass(frozen=True)
-class _Cell:
+class _Cell(NamedTuple):
     """parse_case's reading of one cell: stored values, categories, patient fields, or its problems."""
 
     raw: Any  # the value as handed to parse_case
@@ -131,8 +130,7 @@ def parse_cell(section: str, name: str, unit: str | None, num: float | None, tex
     return cell
 
 
-@dataclass(frozen=True)
-class _Route:
+class _Route(NamedTuple):
     """How the numeric cells of one (section, name, unit) are read."""
 
     kind: str  # quantity | cell (parse_cell per distinct value) | problem

@@ -6,8 +6,7 @@ read).  The output fields are built from the same objects `tubulo rank` builds.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 from ..case import parse_case
 from ..cautions import cautions
@@ -21,8 +20,7 @@ __all__ = ["RowResult", "screen_mapping", "abnormal_findings", "critical_items",
            "problems_text"]
 
 
-@dataclass(frozen=True)
-class RowResult:
+class RowResult(NamedTuple):
     error: str | None
     critical: tuple[str, ...] = ()
     critical_keys: tuple[str, ...] = ()

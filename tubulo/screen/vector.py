@@ -16,8 +16,7 @@ distinct operands, because numpy's `power` may round differently.
 from __future__ import annotations
 
 import sys
-from dataclasses import dataclass
-from typing import Mapping
+from typing import Mapping, NamedTuple
 
 import numpy as np
 
@@ -30,8 +29,7 @@ _NEUMAIER = sys.version_info >= (3, 12)  # the interpreter's float sum() is comp
 _F, _M = SEX_CODES.index("female"), SEX_CODES.index("male")
 
 
-@dataclass(frozen=True)
-class Batch:
+class Batch(NamedTuple):
     """Validated cases: values in internal units (NaN = not measured), category codes (-1 = not given)."""
 
     values: np.ndarray  # (len(sk.value_keys), n): one contiguous row per key
@@ -46,8 +44,7 @@ class Batch:
         return Batch(self.values[:, rows], self.categories[:, rows], self.sex[rows])
 
 
-@dataclass(frozen=True)
-class Evaluated:
+class Evaluated(NamedTuple):
     states: np.ndarray  # (n, n_variables) int8 state codes, -1 unobserved (after gates)
     critical: dict[int, list[tuple[str, str, float, float]]]  # case -> [(key, side, value, limit)], assess order
 

@@ -3,8 +3,7 @@ search by id, name, synonym, gene symbol or part of a label.  No Textual import 
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any, Mapping, NamedTuple
 
 __all__ = ["EDGE_WORDS", "Neighbour", "NeighbourGroup", "edge_detail", "neighbour_groups", "node_title",
            "search_nodes"]
@@ -27,16 +26,14 @@ _GROUP_ORDER = ("part_of", "expressed_in", "located_in", "encoded_by", "defect_o
                 "causes", "member_of", "exposed_to", "manifests")
 
 
-@dataclass(frozen=True)
-class Neighbour:
+class Neighbour(NamedTuple):
     node: str
     label: str
     kind: str
     edge: Mapping[str, Any]
 
 
-@dataclass(frozen=True)
-class NeighbourGroup:
+class NeighbourGroup(NamedTuple):
     edge_kind: str
     direction: str  # out | in
     title: str

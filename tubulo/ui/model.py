@@ -10,9 +10,9 @@ from __future__ import annotations
 
 import re
 import time
-from dataclasses import dataclass, field
+from types import MappingProxyType
 from functools import cache
-from typing import Any, Mapping, Sequence
+from typing import Any, Mapping, NamedTuple, Sequence
 
 from ..case import CATEGORIES, ONSETS, PATTERNS, SEXES, TOP_KEYS, parse_case
 from ..errors import CaseError, Problem
@@ -69,8 +69,7 @@ _CHOICE_LABELS = {
 _NUMBER_PART = re.compile(r"^\s*([-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
 
-@dataclass(frozen=True)
-class FieldSpec:
+class FieldSpec(NamedTuple):
     """One field of the entry form and where its value lives in the raw case mapping."""
 
     id: str  # canonical "section.key" ("case" and "onset" are top-level)
@@ -332,8 +331,7 @@ def problems_by_field(problems: Sequence[Problem], raw: Mapping[str, Any]) -> tu
 # --- vocabularies for the entry form --------------------------------------------------------
 
 
-@dataclass(frozen=True)
-class HpoHit:
+class HpoHit(NamedTuple):
     id: str
     label: str
     matched: str  # the name that matched (label or synonym)
@@ -425,8 +423,7 @@ def exposure_names(tables: Mapping[str, Any]) -> list[str]:
 # --- one evaluation pass ----------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
-class Evaluation:
+class Evaluation(NamedTuple):
     """The engine's answer for one version of the workup."""
 
     valid: bool
@@ -436,7 +433,7 @@ class Evaluation:
     result: Any = None  # the RankResult (for the exported report), None when invalid
     seconds: float = 0.0
     generation: int = 0
-    extra: Mapping[str, Any] = field(default_factory=dict)
+    extra: Mapping[str, Any] = MappingProxyType({})
 
 
 def evaluate(raw: Mapping[str, Any], tables: Mapping[str, Any], source: str = "", generation: int = 0,
@@ -477,8 +474,7 @@ def candidate_rows(document: Mapping[str, Any], top: int = EXPLAIN_TOP) -> list[
 # --- the causal path of one piece of evidence --------------------------------------------------
 
 
-@dataclass(frozen=True)
-class PathStep:
+class PathStep(NamedTuple):
     """One step of a causal path as the evidence walk shows it."""
 
     node: str

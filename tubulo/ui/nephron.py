@@ -9,9 +9,8 @@ S3), or else through its parent (principal cell -> collecting duct).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from functools import cache
-from typing import Any, Iterable, Mapping
+from typing import Any, Iterable, Mapping, NamedTuple
 
 __all__ = ["MapCell", "drawn_segments", "drawn_regions", "nephron_canvas", "render_rows", "site_lists"]
 
@@ -20,8 +19,7 @@ _A, _B, _C = 3, 42, 71
 _WIDTH = 75
 
 
-@dataclass(frozen=True)
-class MapCell:
+class MapCell(NamedTuple):
     char: str
     region: str | None = None  # segment id when the cell belongs to a box
     zone: bool = False  # a zone line (cortex / medulla boundaries)
