@@ -94,3 +94,41 @@ def test_urine_calcium_uses_age_specific_limit_matos_1997():
                                                   "urine": {"calcium": "1.0 mmol/L", "creatinine": "1.0 mmol/L"}})))
     assert case("2.5 y").state("urine_calcium") == "normal"
     assert case("10 y").state("urine_calcium") == "high"
+
+
+def _cccr_case(u_ca, s_ca="2.75 mmol/L"):
+    # CCCR = (U_Ca x S_Cr) / (S_Ca x U_Cr) (Christensen SE et al. 2008 Clin Endocrinol (Oxf)); with
+    # S_Cr/U_Cr = 0.01 and S_Ca 2.75 mmol/L, CCCR = U_Ca / 275
+    return findings(serum={"calcium": s_ca, "albumin": "42 g/L", "creatinine": "88.4 umol/L"},
+                    urine={"calcium": f"{u_ca} mmol/L", "creatinine": "8.84 mmol/L"})
+
+
+def test_calcium_clearance_ratio_below_0_01_and_above_0_02_christensen_2008():
+    assert _cccr_case(275 * 0.008).state("calcium_clearance_ratio") == "low"
+    assert _cccr_case(275 * 0.015).state("calcium_clearance_ratio") == "intermediate"
+    assert _cccr_case(275 * 0.025).state("calcium_clearance_ratio") == "high"
+
+
+def test_calcium_clearance_ratio_is_read_only_in_hypercalcaemia():
+    f = _cccr_case(275 * 0.008, s_ca="2.35 mmol/L")
+    assert f.state("serum_calcium") == "normal" and f.state("calcium_clearance_ratio") is None
+
+
+def _renin_case(age, renin, aldosterone="400 pmol/L"):
+    return derive_findings(assess(parse_case({"case": "r", "patient": {"age": age, "sex": "male"},
+                                              "serum": {"renin_activity": renin, "aldosterone": aldosterone}})))
+
+
+def test_renin_and_aldosterone_read_against_the_adult_interval():
+    f = _renin_case("40 y", "0.2 ng/mL/h", "60 pmol/L")
+    assert f.state("renin") == "low" and f.state("aldosterone") == "low"
+    assert _renin_case("40 y", "2 ng/mL/h").state("renin") == "normal"
+
+
+def test_in_a_child_only_a_value_below_the_adult_lower_limit_is_read():
+    # children run higher renin and aldosterone than adults (no paediatric interval is shipped):
+    # a suppressed value is low at any age, any other value is left unobserved, never read as normal
+    f = _renin_case("10 y", "0.1 ng/mL/h", "60 pmol/L")
+    assert f.state("renin") == "low" and f.state("aldosterone") == "low"
+    f = _renin_case("10 y", "2 ng/mL/h", "400 pmol/L")
+    assert f.state("renin") is None and f.state("aldosterone") is None
