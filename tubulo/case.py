@@ -431,7 +431,12 @@ def _string_list(col: _Collector, path: str, raw: Any) -> list[str]:
 
 
 def _features(col: _Collector, path: str, raw: Any) -> tuple[Feature, ...]:
-    from .vocab import lookup_hpo_id, lookup_phrase, suggest_phrases
+    from .vocab import in_subset, lookup_hpo_id, lookup_phrase, suggest_phrases
+
+    def outside(where: str, term) -> None:
+        if not in_subset(term.id):
+            col.note(where, f"{term.id} {term.label} is an HPO term outside those tubulo's knowledge is written in: "
+                     "it is kept, and weighs only through the broader terms it falls under", "info")
 
     out: list[Feature] = []
     for i, item in enumerate(_string_list(col, path, raw)):
@@ -448,6 +453,7 @@ def _features(col: _Collector, path: str, raw: Any) -> tuple[Feature, ...]:
             if label and lookup_phrase(label) is not term and label.lower() != term.label.lower():
                 col.note(where, f"label '{label}' differs from HPO's '{term.label}' for {hid}; the id is used",
                          "warning")
+            outside(where, term)
             out.append(Feature(term.id, term.label, item))
             continue
         term = lookup_phrase(item)
@@ -456,6 +462,7 @@ def _features(col: _Collector, path: str, raw: Any) -> tuple[Feature, ...]:
             hint = f"; did you mean {' or '.join(hints)}?" if hints else "; give an HPO id (HP:0000000) instead"
             col.error(where, f"'{item}' is not a finding tubulo knows{hint}")
             continue
+        outside(where, term)
         out.append(Feature(term.id, term.label, item))
     return tuple(out)
 

@@ -20,6 +20,7 @@ __all__ = [
     "fold",
     "hpo_release",
     "hpo_terms",
+    "in_subset",
     "lookup_drug",
     "lookup_exposure",
     "lookup_hpo_id",
@@ -61,12 +62,29 @@ def fold(text: str) -> str:
 def _subset() -> dict:
     from .cache import cached
 
-    return cached("hpo", _read_subset)
+    return cached("hpo", lambda: _read_terms("hpo_subset.json"))
 
 
-def _read_subset() -> dict:
-    with open(knowledge_dir() / "hpo_subset.json", encoding="utf-8") as fh:
+@cache
+def _extended() -> dict:
+    """The rest of HPO's phenotypic-abnormality branch (hpo_extended.json), read only when a case
+    names a term the subset lacks; {} when the file is not shipped."""
+    from .cache import cached
+
+    try:
+        return cached("hpo_extended", lambda: _read_terms("hpo_extended.json"))["terms"]
+    except FileNotFoundError:
+        return {}
+
+
+def _read_terms(name: str) -> dict:
+    with open(knowledge_dir() / name, encoding="utf-8") as fh:
         return json.load(fh)
+
+
+def in_subset(hid: str) -> bool:
+    """Whether the term is one of the subset tubulo's knowledge is written in (hpo_subset.json)."""
+    return hid in _subset()["terms"]
 
 
 def hpo_release() -> str:
@@ -75,7 +93,8 @@ def hpo_release() -> str:
 
 
 class _Terms(Mapping):
-    """The bundled HPO terms, built into HpoTerm objects only when asked for (fast start)."""
+    """The bundled HPO terms: the subset tubulo reasons with, then (looked up on a miss, or when
+    iterated) the rest of the phenotype branch.  HpoTerm objects are built only when asked for."""
 
     def __init__(self, raw: dict) -> None:
         self._raw = raw
@@ -84,17 +103,23 @@ class _Terms(Mapping):
     def __getitem__(self, hid: str) -> HpoTerm:
         term = self._made.get(hid)
         if term is None:
-            t = self._raw[hid]
+            t = self._raw.get(hid)
+            if t is None:
+                t = _extended()[hid]
             term = HpoTerm(hid, t["label"], tuple(t.get("synonyms", ())), tuple(t.get("parents", ())),
                            bool(t.get("obsolete")))
             self._made[hid] = term
         return term
 
+    def __contains__(self, hid: object) -> bool:
+        return hid in self._raw or hid in _extended()
+
     def __iter__(self):
-        return iter(self._raw)
+        yield from self._raw
+        yield from (hid for hid in _extended() if hid not in self._raw)
 
     def __len__(self) -> int:
-        return len(self._raw)
+        return len(self._raw) + sum(1 for hid in _extended() if hid not in self._raw)
 
 
 @cache
@@ -109,13 +134,19 @@ def _phrase_index() -> dict[str, str]:
     return cached("phrases", _build_phrase_index)
 
 
-def _build_phrase_index() -> dict[str, str]:
+def _names(raw: Mapping[str, Mapping]) -> dict[str, str]:
+    """Folded label and synonyms of each current term -> its id (the first term to claim a name keeps it)."""
     index: dict[str, str] = {}
-    for term in hpo_terms().values():
-        if term.obsolete:
+    for hid, t in raw.items():
+        if t.get("obsolete"):
             continue
-        for name in (term.label, *term.synonyms):
-            index.setdefault(fold(name), term.id)
+        for name in (t["label"], *t.get("synonyms", ())):
+            index.setdefault(fold(name), hid)
+    return index
+
+
+def _build_phrase_index() -> dict[str, str]:
+    index = _names(_subset()["terms"])
     # our own extra phrases (knowledge/phrases.yaml), e.g. clinic words for HPO terms
     try:
         extra = read_knowledge_yaml("phrases.yaml") or {}
@@ -124,6 +155,13 @@ def _build_phrase_index() -> dict[str, str]:
     for phrase, hid in (extra.get("phrases") or {}).items():
         index[fold(phrase)] = hid
     return index
+
+
+@cache
+def _extended_phrase_index() -> dict[str, str]:
+    from .cache import cached
+
+    return cached("phrases_extended", lambda: _names(_extended()))
 
 
 def lookup_hpo_id(text: str) -> tuple[HpoTerm | None, str, str]:
@@ -136,13 +174,18 @@ def lookup_hpo_id(text: str) -> tuple[HpoTerm | None, str, str]:
 
 
 def lookup_phrase(text: str) -> HpoTerm | None:
-    """A plain phrase ("nephrocalcinosis", "hypokalaemia") -> its HPO term, or None."""
-    hid = _phrase_index().get(fold(text))
+    """A plain phrase ("nephrocalcinosis", "hypokalaemia", "myalgia") -> its HPO term, or None.
+
+    The subset's names and the clinic phrases of phrases.yaml come first; then the rest of HPO's
+    phenotype branch."""
+    key = fold(text)
+    hid = _phrase_index().get(key) or _extended_phrase_index().get(key)
     return hpo_terms().get(hid) if hid else None
 
 
 def suggest_phrases(text: str, n: int = 3) -> list[str]:
-    """Closest known phrases, each as 'HP:id label'."""
+    """Closest known phrases, each as 'HP:id label' (from the subset and the clinic phrases, the
+    terms tubulo reasons with)."""
     index = _phrase_index()
     close = difflib.get_close_matches(fold(text), list(index), n=n, cutoff=0.6)
     out = []

