@@ -18,7 +18,7 @@ from types import MappingProxyType
 from typing import Any, Mapping, NamedTuple
 
 from .errors import CaseError, KnowledgeError, Problem, UnitError
-from .units import AnalyteSpec, analyte_specs, convert, parse_number_unit
+from .units import AnalyteSpec, analyte_specs, convert, daily_factor, parse_number_unit
 
 __all__ = [
     "Case",
@@ -306,8 +306,11 @@ def _fmt(v: Any) -> str:
     return f"'{v}'" if isinstance(v, str) else repr(v)
 
 
-def _quantity(col: _Collector, path: str, raw: Any, spec: AnalyteSpec) -> Measurement | None:
-    """Validate one quantity; returns a Measurement in the internal unit, or records a problem."""
+def _quantity(col: _Collector, path: str, raw: Any, spec: AnalyteSpec,
+              day: tuple[str | None, float | None] | None = None) -> Measurement | None:
+    """Validate one quantity; returns a Measurement in the internal unit, or records a problem.
+
+    `day` is (urine sample, urine volume in L) for urine values: there an amount per day is read too."""
     if isinstance(raw, bool) or raw is None or isinstance(raw, (list, dict)):
         col.error(path, f"{_fmt(raw)} is not a quantity; expected a number with a unit like '{_example(spec)}'")
         return None
@@ -336,8 +339,13 @@ def _quantity(col: _Collector, path: str, raw: Any, spec: AnalyteSpec) -> Measur
     try:
         value = convert(number, unit, spec)
     except UnitError as exc:
-        col.error(path, f"{_fmt(raw)}: {exc}")
-        return None
+        factor = daily_factor(unit, spec) if day is not None and unit else None
+        if factor is None:
+            col.error(path, f"{_fmt(raw)}: {exc}")
+            return None
+        value = _daily_amount(col, path, raw, number * factor, spec, day)
+        if value is None:
+            return None
     lo, hi = spec.plausible
     if not (lo <= value <= hi):
         col.error(path, _implausible(number, unit or spec.default_unit, value, spec))
@@ -347,6 +355,35 @@ def _quantity(col: _Collector, path: str, raw: Any, spec: AnalyteSpec) -> Measur
     if spec.stored_as:
         col.note(path, f"{given} stored as {key} = {value:.3g} {out_unit}")
     return Measurement(key, value, out_unit, given, assumed)
+
+
+def _daily_amount(col: _Collector, path: str, raw: Any, per_day: float, spec: AnalyteSpec,
+                  day: tuple[str | None, float | None]) -> float | None:
+    """A 24-h urine amount ('6.2 mmol/24h') as the concentration it makes in that day's volume."""
+    sample, volume = day
+    if sample != "24h" or volume is None:
+        col.error(path, f"{_fmt(raw)} is an amount per day: give urine.sample: 24h and urine.volume (the day's "
+                  f"volume) to read it, or write the concentration ({', '.join(spec.units)})")
+        return None
+    value = per_day / volume
+    col.note(path, f"{_fmt(raw)} read as {value:.3g} {spec.unit} in the day's {volume:g} L")
+    return value
+
+
+def _urine_day(data: Mapping[str, Any]) -> tuple[str | None, float | None]:
+    """The urine sample kind and volume (L) as written, read ahead so daily amounts can be placed;
+    their own problems are reported where they are parsed."""
+    sec = data.get("urine")
+    if not isinstance(sec, dict):
+        return None, None
+    keys = {target: raw for key, raw in sec.items() if (target := section_keys("urine").get(key))}
+    sample = keys.get("urine.sample")
+    sample = sample.strip().lower() if isinstance(sample, str) else None
+    volume = None
+    if keys.get("urine.volume") is not None:
+        m = _quantity(_Collector(), "urine.volume", keys["urine.volume"], analyte_specs()["urine.volume"])
+        volume = m.value if m else None
+    return sample, volume
 
 
 def _example(spec: AnalyteSpec) -> str:
@@ -562,6 +599,7 @@ def parse_case(data: Mapping[str, Any], source: str = "") -> Case:
 
     measurements: dict[str, Measurement] = {}
     categories: dict[str, str] = {}
+    day = _urine_day(data)
     for section in ("vitals", "serum", "blood_gas", "urine", "tests"):
         sec = _mapping(col, section, data.get(section))
         known = section_keys(section)
@@ -585,7 +623,7 @@ def parse_case(data: Mapping[str, Any], source: str = "") -> Case:
             if spec.qualitative and isinstance(raw, str) and raw.strip().lower() in spec.qualitative:
                 categories[target] = raw.strip().lower()
                 continue
-            m = _quantity(col, path, raw, spec)
+            m = _quantity(col, path, raw, spec, day if section == "urine" else None)
             if m:
                 if m.key in measurements:
                     col.error(path, f"given twice (also as {measurements[m.key].given!r}); keep one")

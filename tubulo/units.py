@@ -211,6 +211,18 @@ def _build_unit_table() -> dict[str, dict[str, float]]:
     return table
 
 
+def daily_factor(unit: str, spec: AnalyteSpec) -> float | None:
+    """Factor from an amount per day ('mg/24h', 'mmol/d') to the analyte's internal concentration unit
+    times litres per day (so dividing by the day's urine volume in litres gives the concentration);
+    None when the analyte is no concentration or `unit` is no amount per day of it."""
+    if not spec.unit.endswith("/L"):
+        return None
+    try:
+        return _pint_factor(normalise_unit(unit), spec._replace(unit=f"{spec.unit[:-2]}/d"))
+    except UnitError:
+        return None
+
+
 def convert(number: float, unit: str | None, spec: AnalyteSpec) -> float:
     """`number` in `unit` (None: the default unit) expressed in the analyte's internal unit."""
     unit = spec.default_unit if unit is None else unit

@@ -8,6 +8,7 @@ import pytest
 from molmass import Formula
 
 from tubulo.case import parse_case
+from tubulo.errors import CaseError
 from tubulo.units import analyte_specs, convert, unit_table
 
 
@@ -82,3 +83,43 @@ def test_ages_in_clinic_units():
     for text, years in (("3 d", 3 / 365.25), ("6 wk", 42 / 365.25), ("14 mo", 14 / 12), ("24 y", 24.0)):
         assert parse_case({"case": "x", "patient": {"age": text}}).patient.age_years == pytest.approx(years, rel=1e-3)
     assert parse_case({"case": "x", "patient": {"age": 7}}).patient.age_years == 7
+
+
+def _day(urine: dict) -> dict:
+    return {"case": "d", "patient": {"age": "40 y", "weight": "70 kg"}, "urine": urine}
+
+
+def test_a_24h_amount_is_read_as_the_concentration_in_the_days_volume():
+    # 250 mg of calcium a day in 1.6 L: 250 / M(Ca) mmol a day (molmass) over 1.6 L
+    ca = Formula("Ca").mass
+    case = parse_case(_day({"sample": "24h", "volume": "1.6 L", "calcium": "250 mg/24h", "sodium": "160 mmol/d",
+                            "creatinine": "12 mmol/24 h"}))
+    assert case.measurements["urine.calcium"].value == pytest.approx(250 / ca / 1.6, rel=2e-3)
+    assert case.measurements["urine.sodium"].value == pytest.approx(100.0)
+    assert case.measurements["urine.creatinine"].value == pytest.approx(7.5)
+    assert case.measurements["urine.calcium"].given == "250 mg/24h"  # what the user typed is kept
+    assert any(n.path == "urine.calcium" and "1.6 L" in n.message for n in case.notes)
+
+
+def test_the_volume_may_be_written_after_the_amount_and_in_millilitres():
+    case = parse_case({"case": "d", "urine": {"potassium": "60 mmol/24h", "volume": "1500 mL", "sample": "24h"}})
+    assert case.measurements["urine.potassium"].value == pytest.approx(40.0)
+
+
+@pytest.mark.parametrize("urine", [
+    {"sample": "spot", "calcium": "6 mmol/24h"},
+    {"sample": "24h", "calcium": "6 mmol/24h"},  # no volume
+    {"sample": "timed", "volume": "0.4 L", "calcium": "6 mmol/24h"},
+    {"calcium": "6 mmol/24h", "volume": "1.5 L"},  # sample not said
+], ids=["spot", "no-volume", "timed", "no-sample"])
+def test_an_amount_per_day_needs_a_24h_sample_and_its_volume(urine):
+    with pytest.raises(CaseError) as exc:
+        parse_case(_day(urine))
+    (problem,) = [p for p in exc.value.problems if p.path == "urine.calcium"]
+    assert "amount per day" in problem.message and "urine.volume" in problem.message
+
+
+def test_an_amount_per_day_is_no_serum_unit():
+    with pytest.raises(CaseError) as exc:
+        parse_case({"case": "d", "serum": {"calcium": "6 mmol/24h"}})
+    assert exc.value.problems[0].path == "serum.calcium"
