@@ -44,6 +44,7 @@ def cautions(workup: Workup, findings: Findings) -> list[Caution]:
         if note.level == "warning" and note.path == "blood_gas":
             out.append(Caution("warning", note.message, "Henderson-Hasselbalch (knowledge/checks.yaml)", "blood_gas_mismatch"))
     drug_on_list = any(m.class_id for m in case.medications)
+    classes_on_list = {m.class_id for m in case.medications if m.class_id}
     for rule in conf.get("quality") or []:
         when = rule.get("when")
         if when:
@@ -56,6 +57,8 @@ def cautions(workup: Workup, findings: Findings) -> list[Caution]:
             if rule.get("needs_variable") and rule["needs_variable"] not in findings.variables:
                 continue
         if rule.get("drug_kind_on_list") and not drug_on_list:
+            continue
+        if rule.get("drug_class_on_list") and not classes_on_list & set(rule["drug_class_on_list"]):
             continue
         out.append(Caution(rule["level"], " ".join(rule["message"].split()), rule.get("source", ""), rule["id"]))
     out.sort(key=lambda c: LEVELS[c.level])

@@ -95,3 +95,18 @@ def test_demo_case_leading_candidate_is_explained():
     top = r.scored[0]
     ex = r.explained[top.id]
     assert ex.support and any(e.path for e in ex.support)
+
+
+def _caution_ids(meds, serum):
+    case = parse_case({"case": "c", "patient": {"age": "50 y"}, "medications": meds, "serum": serum})
+    return {c.id for c in rank_case(case).cautions}
+
+
+def test_drug_class_cautions_need_the_drug_and_the_finding():
+    # conditions as written in knowledge/cautions.yaml: a class on the medication list, and a finding
+    assert "methylxanthine_low_potassium" in _caution_ids(["theophylline"], {"potassium": "2.9 mmol/L"})
+    assert "methylxanthine_low_potassium" not in _caution_ids(["theophylline"], {"potassium": "4.2 mmol/L"})
+    assert "methylxanthine_low_potassium" not in _caution_ids(["furosemide"], {"potassium": "2.9 mmol/L"})
+    assert "glucocorticoid_on_list" in _caution_ids(["Prednisolone"], {"potassium": "4.2 mmol/L"})
+    assert "glucocorticoid_on_list" not in _caution_ids([], {"potassium": "4.2 mmol/L"})
+    assert "lithium_high_sodium" in _caution_ids(["lithium carbonate"], {"sodium": "152 mmol/L"})

@@ -215,3 +215,40 @@ def test_abnormal_states_are_checked(good_copy, edit, what):
     errors = [str(x) for x in problems if x.level == "error" and "variable 'serum_potassium'" in str(x)]
     assert len(errors) == 1, errors
     assert errors[0].startswith("variables.yaml:5:") and what in errors[0], errors[0]
+
+
+_CAUTIONS = """version: 1
+standing: Decision support, not a diagnosis.
+critical_message: "{label} {value} {unit} is past the limit ({side} {limit} {unit})"
+critical_source_note: the local list decides
+quality:
+  - id: rule_one
+    level: warning
+    when: {variable: serum_potassium, states: [low]}
+    message: a caution
+    source: common practice
+"""
+
+
+def test_a_good_cautions_file_is_clean(good_copy):
+    (good_copy / "cautions.yaml").write_text(_CAUTIONS)
+    _, problems = check_knowledge(good_copy)
+    assert not [x for x in problems if x.level == "error" and "cautions.yaml" in str(x)]
+
+
+@pytest.mark.parametrize("edit,what", [
+    (("states: [low]", "states: [lowish]"), "field when: states ['lowish'] are not states of serum_potassium"),
+    (("variable: serum_potassium", "variable: serum_potasium"), "field when: 'serum_potasium' is not a variable"),
+    (("    when: {variable: serum_potassium, states: [low]}\n", "    drug_class_on_list: [no_such_class]\n"),
+     "field drug_class_on_list: 'no_such_class' is not a drug class"),
+    (("    when: {variable: serum_potassium, states: [low]}\n", ""), "names no condition"),
+    (("level: warning", "level: loud"), "level"),
+    (("is past the limit", "is past {cap}"), "names ['cap']"),
+    (("    source: common practice\n", ""), "source"),
+], ids=["state", "variable", "drug-class", "no-condition", "level", "message-field", "no-source"])
+def test_cautions_are_checked(good_copy, edit, what):
+    assert edit[0] in _CAUTIONS
+    (good_copy / "cautions.yaml").write_text(_CAUTIONS.replace(edit[0], edit[1], 1))
+    _, problems = check_knowledge(good_copy)
+    errors = [str(x) for x in problems if x.level == "error" and "cautions.yaml" in str(x)]
+    assert len(errors) == 1 and what in errors[0], errors

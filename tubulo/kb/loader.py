@@ -5,7 +5,7 @@ problem as `file:line: entry 'id': field: what is wrong`.  `check_knowledge(fold
 problems (errors and warnings) without raising, for `tubulo knowledge check`.
 
 Files read: `variables.yaml`, `meta.yaml`, `scoring.yaml`, `hpo_exceptions.yaml`,
-`consistency_exceptions.yaml`, and every other `*.yaml` whose top-level keys are graph keys
+`consistency_exceptions.yaml`, `cautions.yaml`, and every other `*.yaml` whose top-level keys are graph keys
 (`segments`, `transporters`, `hormones`, `mechanisms`, `edges`, `disorders`, `drug_classes`,
 `exposures`).  Files of the measurement layer (analytes, reference intervals, indices, findings)
 are validated by their own modules and skipped here.
@@ -32,6 +32,7 @@ _SPECIAL = {
     "scoring.yaml": S.Scoring,
     "hpo_exceptions.yaml": S.HpoExceptions,
     "consistency_exceptions.yaml": S.ConsistencyExceptions,
+    "cautions.yaml": S.CautionsFile,
 }
 _REQUIRED = ("variables.yaml", "meta.yaml", "scoring.yaml")
 # sections whose entries are graph nodes with an `id`
@@ -270,6 +271,7 @@ def check_knowledge(folder: Path | str | None = None) -> tuple[Knowledge | None,
     variables = dict(vf.variables) if vf else {}
     manifests = _check_manifests(raw_manifests, variables, problems)
     _cross_check(sections, edges, variables, origin, special, problems)
+    _check_cautions(special.get("cautions.yaml"), variables, sections["drug_classes"], folder, problems)
 
     errors = [p for p in problems if p.level == "error"]
     if errors:
@@ -448,6 +450,37 @@ def _cross_check(sections, edges, variables, origin, special, problems) -> None:
         for j, x in enumerate(getattr(he, sec, []) if he else []):
             if x.disorder not in sections["disorders"]:
                 problems.append(Problem("hpo_exceptions.yaml", f"{sec}[{j}]: field disorder: {x.disorder!r} is not a disorder"))
+
+
+def _check_cautions(cf: S.CautionsFile | None, variables, drug_classes, folder: Path, problems) -> None:
+    """The findings, analytes and drug classes a caution names exist (else it would never be raised)."""
+    if cf is None:
+        return
+    try:
+        with open(folder / "analytes.yaml", encoding="utf-8") as fh:
+            analytes = set((yaml.load(fh, Loader=_Loader) or {}).get("analytes") or {})
+    except OSError:
+        analytes = set()
+
+    def bad(rule: S.CautionRule, field: str, what: str) -> None:
+        problems.append(Problem("cautions.yaml", f"quality entry {rule.id!r}: field {field}: {what}"))
+
+    for rule in cf.quality:
+        if rule.when:
+            v = variables.get(rule.when.variable)
+            if v is None:
+                bad(rule, "when", f"{rule.when.variable!r} is not a variable")
+            elif set(rule.when.states) - set(v.states):
+                bad(rule, "when", f"states {sorted(set(rule.when.states) - set(v.states))} are not states of "
+                                  f"{rule.when.variable} ({v.states})")
+        if rule.needs_variable and rule.needs_variable not in variables:
+            bad(rule, "needs_variable", f"{rule.needs_variable!r} is not a variable")
+        for key in rule.missing:
+            if analytes and key not in analytes:
+                bad(rule, "missing", f"{key!r} is not an analyte of analytes.yaml")
+        for cid in rule.drug_class_on_list:
+            if cid not in drug_classes:
+                bad(rule, "drug_class_on_list", f"{cid!r} is not a drug class")
 
 
 def _gate_leaves(g: S.Gate | None):

@@ -11,7 +11,7 @@ from __future__ import annotations
 import re
 from typing import Annotated, Literal, Union
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, field_validator, model_validator
 
 __all__ = [
     "ID_RE",
@@ -429,6 +429,65 @@ class ConsistencyException(_Strict):
 
 class ConsistencyExceptions(_Strict):
     exceptions: list[ConsistencyException] = []
+
+
+class CautionWhen(_Strict):
+    variable: Id
+    states: list[str] = Field(min_length=1)
+
+
+class CautionRule(_Strict):
+    """A data-quality or context caution (cautions.yaml `quality`), raised when every condition it
+    names holds: a finding, missing measurements, a drug on the medication list."""
+
+    id: Id
+    level: Literal["critical", "warning", "info"]
+    message: str = Field(min_length=1)
+    source: str = Field(min_length=1)
+    when: CautionWhen | None = None  # a finding: the variable is observed in one of these states
+    missing: list[str] = []  # analyte keys: none of them is measured ...
+    needs_variable: Id | None = None  # ... while this variable is observed
+    drug_kind_on_list: bool = False  # a drug the knowledge covers is on the medication list
+    drug_class_on_list: list[Id] = []  # a member of one of these drug classes is on the list
+
+    @model_validator(mode="after")
+    def _has_condition(self) -> "CautionRule":
+        if not (self.when or self.missing or self.drug_kind_on_list or self.drug_class_on_list):
+            raise ValueError("names no condition (when, missing, drug_kind_on_list or drug_class_on_list): "
+                             "it would be raised on every case")
+        if self.needs_variable and not self.missing:
+            raise ValueError("needs_variable qualifies missing, which is not given")
+        return self
+
+
+CRITICAL_MESSAGE_FIELDS = frozenset({"label", "value", "unit", "side", "limit"})
+
+
+class CautionsFile(_Strict):
+    version: int = 1
+    standing: str = Field(min_length=1)
+    critical_message: str = Field(min_length=1)
+    critical_source_note: str = Field(min_length=1)
+    quality: list[CautionRule] = []
+
+    @field_validator("critical_message")
+    @classmethod
+    def _fields(cls, text: str) -> str:
+        import string
+
+        used = {name for _, name, _, _ in string.Formatter().parse(text) if name}
+        if used - CRITICAL_MESSAGE_FIELDS:
+            raise ValueError(f"names {sorted(used - CRITICAL_MESSAGE_FIELDS)}; the fields are "
+                             f"{sorted(CRITICAL_MESSAGE_FIELDS)}")
+        return text
+
+    @model_validator(mode="after")
+    def _unique(self) -> "CautionsFile":
+        ids = [r.id for r in self.quality]
+        twice = sorted({i for i in ids if ids.count(i) > 1})
+        if twice:
+            raise ValueError(f"quality ids listed twice: {twice}")
+        return self
 
 
 Gate.model_rebuild()
