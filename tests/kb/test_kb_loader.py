@@ -252,3 +252,41 @@ def test_cautions_are_checked(good_copy, edit, what):
     _, problems = check_knowledge(good_copy)
     errors = [str(x) for x in problems if x.level == "error" and "cautions.yaml" in str(x)]
     assert len(errors) == 1 and what in errors[0], errors
+
+
+def _real_copy(tmp_path, name):
+    import shutil
+
+    from tubulo.paths import knowledge_dir
+
+    dst = tmp_path / "kn"
+    shutil.copytree(knowledge_dir(), dst)
+    return dst, dst / name
+
+
+@pytest.mark.parametrize("name,edit,what", [
+    ("priors.yaml", ("evidence_weight: 1.0", "evidence_weight: 0"), "evidence_weight"),
+    ("priors.yaml", ("panel_coverage: 0.95", "panel_coverage: 1.5"), "panel_coverage"),
+    ("priors.yaml", ("  AR: 3.0\nfamily", "  ARR: 3.0\nfamily"), "consanguinity_factor"),
+    ("phrases.yaml", ("cramps: HP:0003394", "cramps: HP:003394"), "is not an HPO id"),
+    ("phrases.yaml", ("cramps: HP:0003394", "cramps: HP:9999999"), "not in hpo_subset.json"),
+    ("checks.yaml", ("pka: 6.1", "pka: -6.1"), "pka"),
+], ids=["priors-typo", "priors-share", "priors-inheritance", "phrase-id", "phrase-unknown", "checks-sign"])
+def test_runtime_settings_files_are_checked(tmp_path, name, edit, what):
+    folder, path = _real_copy(tmp_path, name)
+    text = path.read_text()
+    assert edit[0] in text
+    path.write_text(text.replace(edit[0], edit[1], 1))
+    _, problems = check_knowledge(folder)
+    errors = [str(x) for x in problems if x.level == "error"]
+    assert len(errors) == 1 and errors[0].startswith(name) and what in errors[0], errors
+
+
+def test_a_mistyped_settings_field_is_named_with_the_closest_field(tmp_path):
+    folder, path = _real_copy(tmp_path, "priors.yaml")
+    path.write_text(path.read_text().replace("drug_on_list_weight: 0.6", "drug_on_list_weigth: 0.6", 1))
+    _, problems = check_knowledge(folder)
+    errors = sorted(str(x) for x in problems if x.level == "error")
+    assert len(errors) == 2, errors  # the typed field is unknown, the intended one is missing
+    assert any("drug_on_list_weigth: unknown field" in e and "did you mean drug_on_list_weight?" in e for e in errors)
+    assert any("drug_on_list_weight: missing required field" in e for e in errors)

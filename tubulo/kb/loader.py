@@ -5,7 +5,8 @@ problem as `file:line: entry 'id': field: what is wrong`.  `check_knowledge(fold
 problems (errors and warnings) without raising, for `tubulo knowledge check`.
 
 Files read: `variables.yaml`, `meta.yaml`, `scoring.yaml`, `hpo_exceptions.yaml`,
-`consistency_exceptions.yaml`, `cautions.yaml`, and every other `*.yaml` whose top-level keys are graph keys
+`consistency_exceptions.yaml`, `cautions.yaml`, `priors.yaml`, `phrases.yaml`, `checks.yaml`,
+and every other `*.yaml` whose top-level keys are graph keys
 (`segments`, `transporters`, `hormones`, `mechanisms`, `edges`, `disorders`, `drug_classes`,
 `exposures`).  Files of the measurement layer (analytes, reference intervals, indices, findings)
 are validated by their own modules and skipped here.
@@ -33,6 +34,9 @@ _SPECIAL = {
     "hpo_exceptions.yaml": S.HpoExceptions,
     "consistency_exceptions.yaml": S.ConsistencyExceptions,
     "cautions.yaml": S.CautionsFile,
+    "priors.yaml": S.PriorsFile,
+    "phrases.yaml": S.PhrasesFile,
+    "checks.yaml": S.ChecksFile,
 }
 _REQUIRED = ("variables.yaml", "meta.yaml", "scoring.yaml")
 # sections whose entries are graph nodes with an `id`
@@ -142,11 +146,26 @@ def _dotted(loc: tuple) -> str:
     return out or "(entry)"
 
 
-def _explain(err: dict) -> str:
+def _fields_at(model: type[BaseModel] | None, loc: tuple) -> list[str]:
+    """The field names of the model found by walking `loc` through nested models (or [])."""
+    for part in loc:
+        if model is None or not isinstance(part, str) or part not in model.model_fields:
+            return []
+        ann = model.model_fields[part].annotation
+        candidates = [a for a in (ann, *getattr(ann, "__args__", ())) if isinstance(a, type) and issubclass(a, BaseModel)]
+        model = candidates[0] if candidates else None
+    return list(model.model_fields) if model is not None else []
+
+
+def _explain(err: dict, model: type[BaseModel] | None = None) -> str:
     kind, msg = err.get("type", ""), err.get("msg", "")
     loc = err.get("loc", ())
     if kind == "extra_forbidden":
-        return f"unknown field (value {err.get('input')!r}); see knowledge/README.md for the fields allowed"
+        import difflib
+
+        close = difflib.get_close_matches(str(loc[-1]) if loc else "", _fields_at(model, tuple(loc[:-1])), n=1)
+        hint = f"; did you mean {close[0]}?" if close else "; see knowledge/README.md for the fields allowed"
+        return f"unknown field (value {err.get('input')!r}){hint}"
     if kind == "missing":
         if loc and loc[-1] == "source":
             return "unsourced: a source is required ('Authors year journal', 'common practice' or 'from memory')"
@@ -170,7 +189,7 @@ def _validate(model: type[BaseModel], raw: Any, f: _File, base: tuple, entry: st
         for err in exc.errors():
             loc = tuple(p for p in err["loc"] if not (isinstance(p, str) and p.startswith(("function-", "list[", "str", "constrained"))))
             problems.append(Problem(f"{f.name}:{f.line(base + loc)}",
-                                    f"{entry}field {_dotted(loc)}: {_explain(err)}"))
+                                    f"{entry}field {_dotted(loc)}: {_explain(err, model)}"))
             if loc:
                 bad_fields.add(loc[0])
         if partial is not None and isinstance(raw, dict) and bad_fields:
@@ -272,6 +291,7 @@ def check_knowledge(folder: Path | str | None = None) -> tuple[Knowledge | None,
     manifests = _check_manifests(raw_manifests, variables, problems)
     _cross_check(sections, edges, variables, origin, special, problems)
     _check_cautions(special.get("cautions.yaml"), variables, sections["drug_classes"], folder, problems)
+    _check_phrases(special.get("phrases.yaml"), folder, problems)
 
     errors = [p for p in problems if p.level == "error"]
     if errors:
@@ -481,6 +501,24 @@ def _check_cautions(cf: S.CautionsFile | None, variables, drug_classes, folder: 
         for cid in rule.drug_class_on_list:
             if cid not in drug_classes:
                 bad(rule, "drug_class_on_list", f"{cid!r} is not a drug class")
+
+
+def _check_phrases(pf: S.PhrasesFile | None, folder: Path, problems) -> None:
+    """Every term phrases.yaml names is in the folder's HPO subset (the terms a case is read against)."""
+    subset = folder / "hpo_subset.json"
+    if pf is None or not subset.is_file():
+        return
+    import json
+
+    terms = set((json.loads(subset.read_text(encoding="utf-8")).get("terms") or {}))
+    for phrase, hid in pf.phrases.items():
+        if hid not in terms:
+            problems.append(Problem("phrases.yaml", f"phrases entry {phrase!r}: {hid} is not in hpo_subset.json "
+                                                    "(run scripts/build_hpo_subset.py)"))
+    for hid in pf.shipped:
+        if hid not in terms:
+            problems.append(Problem("phrases.yaml", f"shipped entry {hid}: not in hpo_subset.json "
+                                                    "(run scripts/build_hpo_subset.py)"))
 
 
 def _gate_leaves(g: S.Gate | None):

@@ -490,6 +490,73 @@ class CautionsFile(_Strict):
         return self
 
 
+Positive = Annotated[float, Field(gt=0)]
+Share = Annotated[float, Field(gt=0, le=1)]
+FamilyPattern = Literal["dominant", "recessive", "x-linked"]
+Cost = Literal["bedside", "routine", "special", "genetic"]
+
+
+def _hpo_id(text: str) -> str:
+    if not HPO_RE.match(text):
+        raise ValueError(f"{text!r} is not an HPO id HP:nnnnnnn")
+    return text
+
+
+HpoKey = Annotated[str, AfterValidator(_hpo_id)]
+
+
+class PriorsFile(_Strict):
+    """priors.yaml: prior weights and context factors of the scorer (project settings)."""
+
+    version: int = 1
+    evidence_weight: Positive
+    residual_weight: Positive
+    unknown_medication_residual: Positive
+    drug_on_list_weight: Positive
+    drug_not_listed_weight: Positive
+    exposure_present_factor: Positive
+    exposure_absent_factor: Positive
+    onset_mismatch_factor: Positive
+    xlr_female_factor: Positive
+    consanguinity_factor: dict[Inheritance, Positive] = {}
+    family_pattern_factor: dict[FamilyPattern, dict[Inheritance, Positive]] = {}
+    affected_relatives_factor: dict[Inheritance, Positive]
+    feature_background: Share
+    hpo_test_cost: dict[HpoKey, Cost] = {}
+    unexplained_below: Share
+    panel_coverage: Share
+
+    @model_validator(mode="after")
+    def _sporadic(self) -> "PriorsFile":
+        if "sporadic" not in self.affected_relatives_factor:
+            raise ValueError("affected_relatives_factor needs 'sporadic' (applied to a candidate whose inheritance "
+                             "the pedigree contradicts)")
+        return self
+
+
+class PhrasesFile(_Strict):
+    """phrases.yaml: clinic words mapped to the HPO term they mean, and terms shipped for users to type."""
+
+    version: int = 1
+    phrases: dict[str, HpoKey] = {}
+    shipped: list[HpoKey] = []
+
+
+class HendersonHasselbalch(_Strict):
+    pka: Positive
+    co2_solubility: Positive
+    tolerance_fraction: Share
+    min_abs: Annotated[float, Field(ge=0)]
+    source: str = Field(min_length=1)
+
+
+class ChecksFile(_Strict):
+    """checks.yaml: data-quality checks on a case's values."""
+
+    version: int = 1
+    henderson_hasselbalch: HendersonHasselbalch
+
+
 Gate.model_rebuild()
 
 # top-level key of a graph file -> model of each entry
