@@ -505,14 +505,18 @@ def _features(col: _Collector, path: str, raw: Any) -> tuple[Feature, ...]:
 
 
 def _medications(col: _Collector, raw: Any) -> tuple[Medication, ...]:
-    from .vocab import lookup_drug, suggest_drugs
+    from .vocab import lookup_drug, lookup_exposure, suggest_drugs
 
     out = []
     for i, name in enumerate(_string_list(col, "medications", raw)):
         m = lookup_drug(name)
         if m is None:
+            exposure = lookup_exposure(name)
             hints = suggest_drugs(name)
-            hint = f" (did you mean {' or '.join(hints)}?)" if hints else ""
+            if exposure:
+                hint = f" (the knowledge holds it as the exposure '{exposure}': list it under exposures when it applies)"
+            else:
+                hint = f" (did you mean {' or '.join(hints)}?)" if hints else ""
             col.note(f"medications[{i}]", f"'{name}' is not in tubulo's drug knowledge{hint}; "
                      "it is kept but cannot be weighed", "warning")
             out.append(Medication(name))

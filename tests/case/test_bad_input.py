@@ -134,3 +134,13 @@ def test_unknown_medication_is_a_warning_not_an_error(tmp_path, capsys):
     assert main(["check", str(path), "--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
     assert any(n["level"] == "warning" and "zzqx-unlisted" in n["message"] for n in doc["case"]["notes"])
+
+
+def test_a_medication_known_only_as_an_exposure_points_there():
+    from tubulo.case import parse_case
+
+    case = parse_case({"case": "m", "medications": ["colecalciferol"]})
+    (note,) = [n for n in case.notes if n.path == "medications[0]"]
+    assert note.level == "warning" and "vitamin_d_high_dose" in note.message and "exposures" in note.message
+    assert case.medications[0].class_id is None  # kept, not weighed, not moved to exposures silently
+    assert case.exposures == ()

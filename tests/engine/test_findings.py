@@ -132,3 +132,12 @@ def test_in_a_child_only_a_value_below_the_adult_lower_limit_is_read():
     assert f.state("renin") == "low" and f.state("aldosterone") == "low"
     f = _renin_case("10 y", "2 ng/mL/h", "400 pmol/L")
     assert f.state("renin") is None and f.state("aldosterone") is None
+
+
+@pytest.mark.parametrize("value,state", [("25 nmol/L", "deficient"), ("40 nmol/L", "insufficient"),
+                                         ("80 nmol/L", "sufficient"), ("300 nmol/L", "toxic"),
+                                         ("10 ng/mL", "deficient"), ("110 ng/mL", "toxic")])
+def test_vitamin_d_status_munns_2016(value, state):
+    # deficient < 30 nmol/L, insufficient 30-50, toxicity > 250 nmol/L (Munns CF et al. 2016 J Clin
+    # Endocrinol Metab); 1 ng/mL = 2.496 nmol/L (molar mass 400.64 g/mol)
+    assert findings(serum={"calcidiol": value}).state("serum_calcidiol") == state
