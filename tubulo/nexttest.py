@@ -120,6 +120,8 @@ def next_tests(scored: Sequence[Scored], findings: Findings, tables: Mapping[str
     ids = [s.id for s in lead]
     for var, label, test, cost in candidates:
         rows = [memo.get((cid, var)) or _dist(tables, cid, var, memo) for cid in ids]
+        if all(r is rows[0] for r in rows):
+            continue  # every leader silent (one shared background): observing it separates nobody, gain 0
         gain = information_gain(pi, [r.probs for r in rows], [r.entropy for r in rows])
         if gain < 0.01:
             continue

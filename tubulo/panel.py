@@ -30,13 +30,16 @@ def gene_panel(scored: Sequence[Scored], tables: Mapping[str, Any], coverage: fl
             per_gene[g] = per_gene.get(g, 0.0) + p / mass
     genes = tuple(sorted(per_gene.items(), key=lambda kv: (-kv[1], kv[0])))
     # a candidate counts as covered when all its genes are on the list (digenic or multi-gene entities)
+    gene_sets = {cid: frozenset(cands[cid]["genes"]) for cid, _ in inherited}
     chosen: list[str] = []
+    chosen_set: set[str] = set()
     covered = 0.0
     for cid, p in sorted(inherited, key=lambda x: (-x[1], x[0])):
         if covered >= coverage - 1e-12:
             break
         for g in cands[cid]["genes"]:
-            if g not in chosen:
+            if g not in chosen_set:
                 chosen.append(g)
-        covered = sum(q for c, q in inherited if set(cands[c]["genes"]) <= set(chosen)) / mass
+                chosen_set.add(g)
+        covered = sum(q for c, q in inherited if gene_sets[c] <= chosen_set) / mass
     return Panel(tuple((g, round(v, 6)) for g, v in genes), tuple(chosen), coverage, round(covered, 6), mass)

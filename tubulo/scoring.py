@@ -20,7 +20,7 @@ from .case import Case
 from .findings import Findings, feature_terms
 from .paths import read_knowledge_yaml
 
-__all__ = ["Evidence", "Scored", "RESIDUAL_ID", "score", "state_probability", "priors", "likelihood_table",
+__all__ = ["Evidence", "Scored", "RESIDUAL_ID", "score", "state_probability", "priors", "likelihood_table", "likelihood_tables",
            "observations"]
 
 RESIDUAL_ID = "residual"
@@ -224,7 +224,7 @@ def likelihood_table(cid: str, obs: Mapping[str, str] | _ObsContext, tables: Map
     memo = per_tables(tables, "evidence", dict)
     compiled = compiled_likelihoods(tables)
     var_rows, feats = compiled[cid]
-    cap = None
+    cap = float(tables["scoring"]["llr_cap"])
     out: list[Evidence] = []
     for var, state in ctx.items:
         row = var_rows.get(var)
@@ -233,25 +233,65 @@ def likelihood_table(cid: str, obs: Mapping[str, str] | _ObsContext, tables: Map
         key = (cid, var, state)
         e = memo.get(key)
         if e is None:
-            cap = float(tables["scoring"]["llr_cap"]) if cap is None else cap
             p, q = row[state]
             e = memo[key] = Evidence(var, state, _llr(p, q, cap), p, q)
         out.append(e)
     if feats:
-        bgs = compiled[_FEATURE_BG]
-        for hid, p_present in feats:
-            state = _feature_state(hid, ctx)
-            if state is None:
-                continue
-            key = (cid, hid, state)
-            e = memo.get(key)
-            if e is None:
-                cap = float(tables["scoring"]["llr_cap"]) if cap is None else cap
-                f = bgs.get(hid, float(_priors_conf()["feature_background"]))
-                p = p_present if state == "present" else 1.0 - p_present
-                q = f if state == "present" else 1.0 - f
-                e = memo[key] = Evidence(hid, state, _llr(p, q, cap), p, q)
-            out.append(e)
+        out += _feature_evidence(cid, feats, ctx, tables, memo, cap)
+    return out
+
+
+def _feature_evidence(cid: str, feats, ctx: _ObsContext, tables: Mapping[str, Any], memo: dict,
+                      cap: float) -> list[Evidence]:
+    bgs = compiled_likelihoods(tables)[_FEATURE_BG]
+    out: list[Evidence] = []
+    for hid, p_present in feats:
+        state = _feature_state(hid, ctx)
+        if state is None:
+            continue
+        key = (cid, hid, state)
+        e = memo.get(key)
+        if e is None:
+            f = bgs.get(hid, float(_priors_conf()["feature_background"]))
+            p = p_present if state == "present" else 1.0 - p_present
+            q = f if state == "present" else 1.0 - f
+            e = memo[key] = Evidence(hid, state, _llr(p, q, cap), p, q)
+        out.append(e)
+    return out
+
+
+def likelihood_tables(ctx: _ObsContext, tables: Mapping[str, Any]) -> dict[str, list[Evidence]]:
+    """`likelihood_table` of every candidate at once (the same lists, in the same order).
+
+    Per observed (variable, state) the candidates that speak to it are listed once per tables, so a
+    case visits only the candidates a finding concerns instead of every candidate for every finding."""
+    compiled = compiled_likelihoods(tables)
+    by_state = per_tables(tables, "evidence_by_state", dict)
+    memo = per_tables(tables, "evidence", dict)
+    cap = float(tables["scoring"]["llr_cap"])
+    out: dict[str, list[Evidence]] = {cid: [] for cid in compiled if cid != _FEATURE_BG}
+    for var, state in ctx.items:
+        hits = by_state.get((var, state))
+        if hits is None:
+            found = []
+            for cid, entry in compiled.items():
+                if cid == _FEATURE_BG:
+                    continue
+                row = entry[0].get(var)
+                if row is None or state not in row:
+                    continue
+                e = memo.get((cid, var, state))
+                if e is None:
+                    p, q = row[state]
+                    e = memo[(cid, var, state)] = Evidence(var, state, _llr(p, q, cap), p, q)
+                found.append((cid, e))
+            hits = by_state[(var, state)] = tuple(found)
+        for cid, e in hits:
+            out[cid].append(e)
+    for cid, lst in out.items():
+        feats = compiled[cid][1]
+        if feats:
+            lst += _feature_evidence(cid, feats, ctx, tables, memo, cap)
     return out
 
 
@@ -318,10 +358,11 @@ def score(case: Case, findings: Findings, tables: Mapping[str, Any]) -> list[Sco
     pri = priors(case, tables)
     # evidence weight < 1 tempers naive-Bayes over-confidence from correlated findings (calibration)
     weight = float(tables["scoring"].get("evidence_weight", _priors_conf().get("evidence_weight", 1.0)))
+    lists = likelihood_tables(obs, tables)
     rows = []
     for cid in sorted(pri):
         w, notes = pri[cid]
-        evidence = () if cid == RESIDUAL_ID else tuple(likelihood_table(cid, obs, tables))
+        evidence = () if cid == RESIDUAL_ID else tuple(lists[cid])
         lp = math.log(w)
         rows.append((cid, lp, lp + weight * sum(e.log_lr for e in evidence), evidence, notes))
     top = max(r[2] for r in rows)

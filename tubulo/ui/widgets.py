@@ -61,9 +61,16 @@ class CautionStrip(Static):
         super().__init__("", markup=False, **kwargs)
         self.cautions: list[Mapping[str, Any]] = []
         self.critical_count = 0
+        self._stale = False
+
+    def on_resize(self, event: Any) -> None:
+        # the warning line is clipped to the width: clip it again when the width is known or changes
+        if self.cautions:
+            self.show(self.cautions, self._stale)
 
     def show(self, cautions: Sequence[Mapping[str, Any]], stale: bool = False) -> None:
         self.cautions = list(cautions)
+        self._stale = stale
         crit = [c for c in cautions if c.get("level") == "critical"]
         warn = [c for c in cautions if c.get("level") == "warning"]
         standing = next((c for c in cautions if c.get("id") == "decision_support"), None)
