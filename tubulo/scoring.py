@@ -230,15 +230,21 @@ def likelihood_table(cid: str, obs: Mapping[str, str] | _ObsContext, tables: Map
         row = var_rows.get(var)
         if row is None or state not in row:
             continue  # silent: background on both sides, ratio 1
-        key = (cid, var, state)
-        e = memo.get(key)
-        if e is None:
-            p, q = row[state]
-            e = memo[key] = Evidence(var, state, _llr(p, q, cap), p, q)
-        out.append(e)
+        out.append(_state_evidence(memo, cid, var, state, row, cap))
     if feats:
         out += _feature_evidence(cid, feats, ctx, tables, memo, cap)
     return out
+
+
+def _state_evidence(memo: dict, cid: str, var: str, state: str, row: Mapping[str, tuple[float, float]],
+                    cap: float) -> Evidence:
+    """The Evidence of one candidate for one observed variable state, made once per tables."""
+    key = (cid, var, state)
+    e = memo.get(key)
+    if e is None:
+        p, q = row[state]
+        e = memo[key] = Evidence(var, state, _llr(p, q, cap), p, q)
+    return e
 
 
 def _feature_evidence(cid: str, feats, ctx: _ObsContext, tables: Mapping[str, Any], memo: dict,
@@ -278,13 +284,8 @@ def likelihood_tables(ctx: _ObsContext, tables: Mapping[str, Any]) -> dict[str, 
                 if cid == _FEATURE_BG:
                     continue
                 row = entry[0].get(var)
-                if row is None or state not in row:
-                    continue
-                e = memo.get((cid, var, state))
-                if e is None:
-                    p, q = row[state]
-                    e = memo[(cid, var, state)] = Evidence(var, state, _llr(p, q, cap), p, q)
-                found.append((cid, e))
+                if row is not None and state in row:
+                    found.append((cid, _state_evidence(memo, cid, var, state, row, cap)))
             hits = by_state[(var, state)] = tuple(found)
         for cid, e in hits:
             out[cid].append(e)

@@ -120,6 +120,8 @@ def _renin_case(age, renin, aldosterone="400 pmol/L"):
 
 
 def test_renin_and_aldosterone_read_against_the_adult_interval():
+    # adult intervals of knowledge/reference_intervals.yaml: renin activity 0.5-4.0 ng/mL/h,
+    # aldosterone 100-830 pmol/L (common practice; from memory)
     f = _renin_case("40 y", "0.2 ng/mL/h", "60 pmol/L")
     assert f.state("renin") == "low" and f.state("aldosterone") == "low"
     assert _renin_case("40 y", "2 ng/mL/h").state("renin") == "normal"
