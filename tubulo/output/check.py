@@ -116,7 +116,8 @@ def check_text(w: Workup, show_all: bool = False) -> str:
             continue
         shown += 1
         state = "" if d.valid else "  (not valid: " + (d.reason or "") + ")"
-        lines.append(f"  {d.label} [{d.id}] = {fmt_number(d.value)} {d.unit}{state}")
+        unit = "" if d.unit == "1" else f" {d.unit}"  # UCUM "1": a plain ratio
+        lines.append(f"  {d.label} [{d.id}] = {fmt_number(d.value)}{unit}{state}")
         lines.append(f"      {d.formula}")
         if d.inputs:
             lines.append("      inputs: " + ", ".join(f"{k} {fmt_number(v)}" for k, v in d.inputs.items()))

@@ -456,5 +456,5 @@ class WorkupView(Vertical):
         for d in rows:
             key = f"derived:{d['id']}"
             self._cell(key, "value", Text(f"{d['value']:.3g}"))
-            self._cell(key, "unit", Text(str(d.get("unit") or "")))
+            self._cell(key, "unit", Text("" if d.get("unit") in (None, "1") else str(d["unit"])))  # UCUM "1": a ratio
             self._cell(key, "problem", Text(f"{d.get('formula', '')}  ({d.get('source', '')})", style="dim"))
