@@ -121,3 +121,25 @@ def test_input_order_does_not_matter(order):
     ref = [(s.id, s.probability) for s in score(case, _findings(**obs), _tables(0.02, 3.0))]
     got = [(s.id, s.probability) for s in score(case, _findings(**{k: obs[k] for k in order}), _tables(0.02, 3.0))]
     assert got == ref
+
+
+def test_all_candidates_at_once_equal_one_candidate_at_a_time():
+    # the per-state index of `likelihood_tables` must give each candidate exactly `likelihood_table`'s list
+    from pathlib import Path
+
+    import yaml
+
+    from tubulo.findings import derive_findings
+    from tubulo.rank import load_tables
+    from tubulo.scoring import _context, likelihood_table, likelihood_tables, observations
+    from tubulo.workup import assess
+
+    tables = load_tables()
+    folder = Path(__file__).resolve().parents[1] / "vignettes"
+    for path in sorted(folder.glob("v-*.yaml"))[::7]:
+        case = parse_case(yaml.safe_load(path.read_text(encoding="utf-8"))["case"], str(path))
+        ctx = _context(observations(derive_findings(assess(case)), tables))
+        lists = likelihood_tables(ctx, tables)
+        assert set(lists) == set(tables["candidates"])
+        for cid in tables["candidates"]:
+            assert lists[cid] == likelihood_table(cid, ctx, tables), (path.name, cid)
